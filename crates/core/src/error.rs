@@ -77,6 +77,29 @@ pub enum CoreError {
         /// The levels present, in hPa, bottom-up.
         available_hpa: Vec<f64>,
     },
+    /// No grid cell centre lies inside the box.
+    #[error(
+        "no grid cell centre lies inside the box {west},{south},{east},{north}; the grid spans \
+         latitudes {lat_min}..{lat_max} and longitudes {lon_min}..{lon_max}"
+    )]
+    EmptyBox {
+        /// Western edge asked for.
+        west: f64,
+        /// Southern edge asked for.
+        south: f64,
+        /// Eastern edge asked for.
+        east: f64,
+        /// Northern edge asked for.
+        north: f64,
+        /// Southernmost grid latitude.
+        lat_min: f64,
+        /// Northernmost grid latitude.
+        lat_max: f64,
+        /// First grid longitude.
+        lon_min: f64,
+        /// Last grid longitude.
+        lon_max: f64,
+    },
     /// A layer's bottom is not below its top.
     #[error("layer {bottom_hpa}-{top_hpa} hPa: the bottom pressure must be greater than the top")]
     InvertedLayer {

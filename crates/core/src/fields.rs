@@ -82,7 +82,18 @@ impl FieldsBuilder {
 
     /// Checks every shape against the grid and the levels.
     pub fn build(self) -> Result<Fields, CoreError> {
-        let f = self.fields;
+        let mut f = self.fields;
+        // The kernel walks rows as contiguous slices: store every array in standard layout.
+        for a in [&mut f.z, &mut f.t, &mut f.q].into_iter().flatten() {
+            standardise(a);
+        }
+        if let Some((u, v)) = &mut f.wind {
+            standardise(u);
+            standardise(v);
+        }
+        for a in [&mut f.ps, &mut f.zs].into_iter().flatten() {
+            standardise(a);
+        }
         let shape3 = vec![f.levels.len(), f.grid.n_lat(), f.grid.n_lon()];
         let shape2 = vec![f.grid.n_lat(), f.grid.n_lon()];
         let check = |what, found: &[usize], expected: &Vec<usize>| {
@@ -119,6 +130,12 @@ impl FieldsBuilder {
             return Err(CoreError::NoThicknessInput);
         }
         Ok(f)
+    }
+}
+
+fn standardise<D: ndarray::Dimension>(a: &mut ndarray::Array<f32, D>) {
+    if !a.is_standard_layout() {
+        *a = a.as_standard_layout().into_owned();
     }
 }
 

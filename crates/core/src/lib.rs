@@ -24,7 +24,7 @@
 //! - **Parallel over (layer, row)** with rayon; [`Parallelism::Serial`] runs the same code on
 //!   one thread, and both give bit-identical results.
 //!
-//! ```ignore
+//! ```
 //! use ndarray::Array3;
 //! use shearbox_core::{compute, BBox, Config, FieldsBuilder, Grid, Levels, box_profile};
 //!
@@ -44,16 +44,23 @@
 //! assert!(profile.layers[0].thermal_wind.unwrap().u < 0.0);
 //! ```
 
+mod boxmean;
 mod constants;
 mod error;
 mod fields;
 mod grid;
+mod kernel;
 mod levels;
 mod mask;
 
+pub use boxmean::{BoxProfile, LayerMeans, LevelMeans, Turning, Vector, box_profile};
 pub use constants::{Config, Constants};
 pub use error::CoreError;
 pub use fields::{Fields, FieldsBuilder};
 pub use grid::{BBox, Grid, Selection};
+pub use kernel::{
+    Diagnostics, LayerDiagnostics, LevelDiagnostics, MIN_GRADIENT_FOR_RATIO, MeanTemperatureKind,
+    Parallelism, ThicknessMethod, compute, compute_with,
+};
 pub use levels::{Layer, Levels};
 pub use mask::{MaskCounts, MaskReason};
