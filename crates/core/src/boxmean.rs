@@ -165,8 +165,12 @@ impl BoxCells {
         (weight > 0.0).then(|| Vector { u: su / weight, v: sv / weight })
     }
 
-    fn count_finite(&self, a: ArrayView2<'_, f32>) -> usize {
-        self.cells.iter().filter(|&&(j, i, _)| a[[j, i]].is_finite()).count()
+    /// Cells where both components of a vector are defined.
+    fn count_defined(&self, u: ArrayView2<'_, f32>, v: ArrayView2<'_, f32>) -> usize {
+        self.cells
+            .iter()
+            .filter(|&&(j, i, _)| u[[j, i]].is_finite() && v[[j, i]].is_finite())
+            .count()
     }
 }
 
@@ -218,7 +222,9 @@ pub fn box_profile(
                 wind: fields.wind().and_then(|(u, v)| {
                     bc.mean_vector(u.index_axis_move(Axis(0), k), v.index_axis_move(Axis(0), k))
                 }),
-                valid_cells: geo.map_or(0, |g| bc.count_finite(g.geostrophic_u.view())),
+                valid_cells: geo.map_or(0, |g| {
+                    bc.count_defined(g.geostrophic_u.view(), g.geostrophic_v.view())
+                }),
             }
         })
         .collect();

@@ -183,10 +183,16 @@ impl Fields {
     /// The same fields on the block `sel` of the grid (for example a box with its halo).
     pub fn subset(&self, sel: &Selection) -> Fields {
         let cols: Vec<usize> = sel.col_indices().collect();
-        let cut3 =
-            |a: &Array3<f32>| a.slice(ndarray::s![.., sel.rows.clone(), ..]).select(Axis(2), &cols);
-        let cut2 =
-            |a: &Array2<f32>| a.slice(ndarray::s![sel.rows.clone(), ..]).select(Axis(1), &cols);
+        let cut3 = |a: &Array3<f32>| {
+            let mut b = a.slice(ndarray::s![.., sel.rows.clone(), ..]).select(Axis(2), &cols);
+            standardise(&mut b);
+            b
+        };
+        let cut2 = |a: &Array2<f32>| {
+            let mut b = a.slice(ndarray::s![sel.rows.clone(), ..]).select(Axis(1), &cols);
+            standardise(&mut b);
+            b
+        };
         Fields {
             grid: self.grid.subset(sel),
             levels: self.levels.clone(),

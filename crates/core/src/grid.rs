@@ -325,6 +325,7 @@ impl Selection {
     }
 
     /// The column run as at most two contiguous index ranges (two when it wraps), in order.
+    #[allow(clippy::single_range_in_vec_init)] // one range is the common case, not a mistake
     pub fn col_ranges(&self) -> Vec<Range<usize>> {
         let end = self.cols.start + self.cols.len;
         if end <= self.n_lon {
