@@ -185,29 +185,14 @@ pub fn box_profile(
     bbox: &BBox,
 ) -> Result<BoxProfile, CoreError> {
     let grid = fields.grid();
-    let cells: Vec<(usize, usize, f64)> = match grid.select(bbox) {
-        Some(sel) => sel
-            .rows
-            .clone()
-            .flat_map(|j| sel.col_indices().map(move |i| (j, i)).collect::<Vec<_>>())
-            .filter(|&(j, i)| grid.cell_in_box(j, i, bbox))
-            .map(|(j, i)| (j, i, grid.lat()[j].to_radians().cos()))
-            .collect(),
-        None => Vec::new(),
-    };
-    if cells.is_empty() {
-        let (lat, lon) = (grid.lat(), grid.lon());
-        return Err(CoreError::EmptyBox {
-            west: bbox.west,
-            south: bbox.south,
-            east: bbox.east,
-            north: bbox.north,
-            lat_min: lat[0],
-            lat_max: lat[lat.len() - 1],
-            lon_min: lon[0],
-            lon_max: lon[lon.len() - 1],
-        });
-    }
+    let sel = grid.select_box(bbox)?;
+    let cells: Vec<(usize, usize, f64)> = sel
+        .rows
+        .clone()
+        .flat_map(|j| sel.col_indices().map(move |i| (j, i)).collect::<Vec<_>>())
+        .filter(|&(j, i)| grid.cell_in_box(j, i, bbox))
+        .map(|(j, i)| (j, i, grid.lat()[j].to_radians().cos()))
+        .collect();
     let bc = BoxCells { cells };
     let levels: Vec<LevelMeans> = (0..fields.levels().len())
         .map(|k| {

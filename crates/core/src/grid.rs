@@ -157,6 +157,21 @@ impl Grid {
         Some(Selection { rows: first..end, cols, n_lon: n, periodic: self.periodic })
     }
 
+    /// [`Grid::select`], with an error that states the grid's extent when no cell centre lies
+    /// inside the box.
+    pub fn select_box(&self, bbox: &BBox) -> Result<Selection, CoreError> {
+        self.select(bbox).ok_or_else(|| CoreError::EmptyBox {
+            west: bbox.west,
+            south: bbox.south,
+            east: bbox.east,
+            north: bbox.north,
+            lat_min: self.lat[0],
+            lat_max: self.lat[self.lat.len() - 1],
+            lon_min: self.lon[0],
+            lon_max: self.lon[self.lon.len() - 1],
+        })
+    }
+
     /// The sub-grid of a selection, with longitudes copied as they are (no unwrapping).
     pub fn subset(&self, sel: &Selection) -> Grid {
         let lat = self.lat[sel.rows.clone()].to_vec();
