@@ -1,0 +1,44 @@
+# Shared set-up for the scripts in this folder: system packages the build and the tests need.
+# Sourced, not run.
+
+as_root() {
+    if [ "$(id -u)" -eq 0 ]; then "$@"; elif command -v sudo >/dev/null 2>&1; then sudo "$@"; else
+        echo "shearbox: need root to install system packages ($*); run as root or install them yourself" >&2
+        return 1
+    fi
+}
+
+apt_updated=0
+apt_install() {
+    if ! command -v apt-get >/dev/null 2>&1; then
+        echo "shearbox: missing system packages: $*" >&2
+        echo "  this is not a Debian/Ubuntu machine: install the equivalent with your package manager" >&2
+        echo "  (the NetCDF C library with headers and its tools ncgen/ncdump, e.g. netcdf-devel or 'brew install netcdf')" >&2
+        return 1
+    fi
+    if [ "$apt_updated" -eq 0 ]; then
+        as_root apt-get update -qq
+        apt_updated=1
+    fi
+    as_root env DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends "$@" >/dev/null
+}
+
+# The NetCDF C library (headers for the build) and netCDF-C's own tools (ncgen, ncdump).
+ensure_netcdf() {
+    local need=()
+    if ! pkg-config --exists netcdf 2>/dev/null && [ ! -f /usr/include/netcdf.h ]; then need+=(libnetcdf-dev); fi
+    command -v pkg-config >/dev/null 2>&1 || need+=(pkg-config)
+    command -v ncdump >/dev/null 2>&1 || need+=(netcdf-bin)
+    if [ ${#need[@]} -gt 0 ]; then
+        echo "shearbox: installing ${need[*]}" >&2
+        apt_install "${need[@]}"
+    fi
+}
+
+# Python 3 with venv, for the numpy reference.
+ensure_python() {
+    if ! command -v python3 >/dev/null 2>&1 || ! python3 -c 'import ensurepip, venv' >/dev/null 2>&1; then
+        echo "shearbox: installing python3 and python3-venv" >&2
+        apt_install python3 python3-venv python3-pip
+    fi
+}
