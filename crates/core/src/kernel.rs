@@ -14,7 +14,7 @@
 //! Each output row is written by exactly one task, so serial and parallel runs produce the same
 //! bits. Arithmetic is `f64` per cell; storage is `f32`.
 
-use ndarray::{Array2, ArrayView2, Axis};
+use ndarray::{Array2, ArrayView2, ArrayView3, Axis};
 use rayon::prelude::*;
 
 use crate::fields::Fields;
@@ -235,18 +235,16 @@ impl<'a> Context<'a> {
         self.fields.grid().n_lat()
     }
 
-    /// Whether cell (j, i) lies under the surface at pressure `p` (Pa), where geopotential
-    /// height at that pressure is `z` (NaN when unknown).
-    fn below_ground(&self, j: usize, i: usize, p: f64, z: f64) -> bool {
-        if let Some(ps) = self.fields.surface_pressure() {
-            let ps = f64::from(ps[[j, i]]);
-            return ps.is_finite() && p > ps;
+    /// The surface fields of row `j`, to tell which cells lie under the ground.
+    fn ground_row(&self, j: usize) -> Ground<'a> {
+        let n = self.n_lon;
+        let cut = |a: ArrayView2<'a, f32>| -> &'a [f32] {
+            &a.to_slice().expect("standard layout")[j * n..(j + 1) * n]
+        };
+        Ground {
+            ps: self.fields.surface_pressure().map(cut),
+            zs: self.fields.surface_height().map(cut),
         }
-        if let Some(zs) = self.fields.surface_height() {
-            let zs = f64::from(zs[[j, i]]);
-            return zs.is_finite() && z.is_finite() && z < zs;
-        }
-        false
     }
 
     /// Geostrophic wind at level `k`: u_g = −(g0/f) ∂Z/∂y, v_g = (g0/f) ∂Z/∂x.
@@ -270,9 +268,10 @@ impl<'a> Context<'a> {
             let (zm, z0, zp) = (row(&z, rs.minus), row(&z, j), row(&z, rs.plus));
             let dy = rs.inv_delta * inv_a;
             let dx = self.inv_a_cos[j];
+            let ground = self.ground_row(j);
             for i in 0..n_lon {
                 let centre = f64::from(z0[i]);
-                if centre.is_nan() || self.below_ground(j, i, p, centre) {
+                if centre.is_nan() || ground.below(i, p, centre) {
                     continue;
                 }
                 let dzdx = diff(z0, cols[i]) * dx;
@@ -349,48 +348,87 @@ impl<'a> Context<'a> {
                     )
                 })
                 .collect();
-            for_rows(par, rows, |j, (th, tb, mut th_t, mut n2_row, mut obs_u, mut obs_v)| {
-                for i in 0..n_lon {
-                    let tbar_dry = t.map(|t| {
-                        (layer.bottom..=layer.top)
-                            .zip(&weights)
-                            .map(|(k, w)| {
-                                let tk = f64::from(t[[k, j, i]]);
-                                let tv = match &q {
-                                    Some(q) => {
-                                        tk * (1.0 + c.virtual_factor * f64::from(q[[k, j, i]]))
-                                    }
-                                    None => tk,
-                                };
-                                w * tv
-                            })
-                            .sum::<f64>()
-                    });
-                    let dz_temp = tbar_dry.map(|tb| c.r_dry / c.g0 * tb * log_ratio);
-                    let dz = match &z {
-                        Some(z) => {
-                            f64::from(z[[layer.top, j, i]]) - f64::from(z[[layer.bottom, j, i]])
+            let n_lat = self.n_lat();
+            for_rows(par, rows, |j, (th, tb, th_t, n2_row, obs_u, obs_v)| {
+                // Rows of level k of a 3-D field, as contiguous slices.
+                let at = |a, k| level_row(a, n_lat, n_lon, k, j);
+                // Σ w_k T_v,k accumulated in f64, one level at a time (contiguous inner loops).
+                let tbar_acc = t.as_ref().map(|t| {
+                    let mut acc = vec![0.0f64; n_lon];
+                    for (k, &w) in (layer.bottom..=layer.top).zip(&weights) {
+                        let tk = at(t, k);
+                        match &q {
+                            Some(q) => {
+                                let qk = at(q, k);
+                                for ((a, &tv), &qv) in acc.iter_mut().zip(tk).zip(qk) {
+                                    let virt = 1.0 + c.virtual_factor * f64::from(qv);
+                                    *a += w * f64::from(tv) * virt;
+                                }
+                            }
+                            None => {
+                                for (a, &tv) in acc.iter_mut().zip(tk) {
+                                    *a += w * f64::from(tv);
+                                }
+                            }
                         }
-                        None => dz_temp.unwrap_or(f64::NAN),
-                    };
-                    th[i] = dz as f32;
-                    tb[i] = tbar_dry.unwrap_or(c.g0 * dz / (c.r_dry * log_ratio)) as f32;
-                    if let (Some(row), Some(v)) = (th_t.as_deref_mut(), dz_temp) {
-                        row[i] = v as f32;
                     }
-                    if let (Some(row), Some(t)) = (n2_row.as_deref_mut(), &t) {
-                        let theta_b = f64::from(t[[layer.bottom, j, i]]) * theta_b_factor;
-                        let theta_t = f64::from(t[[layer.top, j, i]]) * theta_t_factor;
+                    acc
+                });
+                let hyps = c.r_dry / c.g0 * log_ratio;
+                match (&z, &tbar_acc) {
+                    (Some(z), _) => {
+                        let (zb, zt) = (at(z, layer.bottom), at(z, layer.top));
+                        for ((h, &b), &t) in th.iter_mut().zip(zb).zip(zt) {
+                            *h = (f64::from(t) - f64::from(b)) as f32;
+                        }
+                    }
+                    (None, Some(acc)) => {
+                        for (h, &a) in th.iter_mut().zip(acc) {
+                            *h = (hyps * a) as f32;
+                        }
+                    }
+                    (None, None) => unreachable!("Fields holds geopotential or temperature"),
+                }
+                match &tbar_acc {
+                    Some(acc) => {
+                        for (x, &a) in tb.iter_mut().zip(acc) {
+                            *x = a as f32;
+                        }
+                        if let Some(row) = th_t {
+                            for (x, &a) in row.iter_mut().zip(acc) {
+                                *x = (hyps * a) as f32;
+                            }
+                        }
+                    }
+                    None => {
+                        // T̄ implied by the geopotential thickness.
+                        for (x, &h) in tb.iter_mut().zip(th.iter()) {
+                            *x = (f64::from(h) / hyps) as f32;
+                        }
+                    }
+                }
+                if let (Some(row), Some(t)) = (n2_row, &t) {
+                    let (tb_row, tt_row) = (at(t, layer.bottom), at(t, layer.top));
+                    for i in 0..n_lon {
+                        let theta_b = f64::from(tb_row[i]) * theta_b_factor;
+                        let theta_t = f64::from(tt_row[i]) * theta_t_factor;
+                        let dz = f64::from(th[i]);
                         if dz > 0.0 {
                             row[i] = (2.0 * c.g0 / (theta_b + theta_t) * (theta_t - theta_b) / dz)
                                 as f32;
                         }
                     }
-                    if let (Some(ur), Some(vr), Some((u, v))) =
-                        (obs_u.as_deref_mut(), obs_v.as_deref_mut(), &wind)
+                }
+                if let (Some(ur), Some(vr), Some((u, v))) = (obs_u, obs_v, &wind) {
+                    for (x, (&b, &t)) in
+                        ur.iter_mut().zip(at(u, layer.bottom).iter().zip(at(u, layer.top)))
                     {
-                        ur[i] = u[[layer.top, j, i]] - u[[layer.bottom, j, i]];
-                        vr[i] = v[[layer.top, j, i]] - v[[layer.bottom, j, i]];
+                        *x = t - b;
+                    }
+                    for (x, (&b, &t)) in
+                        vr.iter_mut().zip(at(v, layer.bottom).iter().zip(at(v, layer.top)))
+                    {
+                        *x = t - b;
                     }
                 }
             });
@@ -493,9 +531,23 @@ impl<'a> Context<'a> {
             let (hm, h0, hp) =
                 (row(&thickness, rs.minus), row(&thickness, j), row(&thickness, rs.plus));
             let (tm, t0, tp) = (row(&tbar, rs.minus), row(&tbar, j), row(&tbar, rs.plus));
+            let ground = self.ground_row(j);
+            let n_lat = grid.n_lat();
+            let z_b = z.as_ref().map(|z| level_row(z, n_lat, n_lon, layer.bottom, j));
+            let cut = |a| grid_row(a, j);
+            let geo = geo_b.zip(geo_t).map(|(b, t)| {
+                (
+                    cut(&b.geostrophic_u),
+                    cut(&b.geostrophic_v),
+                    cut(&t.geostrophic_u),
+                    cut(&t.geostrophic_v),
+                )
+            });
+            let n2_row = n2.as_ref().map(|a| row(a, j));
+            let obs_rows = obs.as_ref().map(|(u, v)| (row(u, j), row(v, j)));
             for i in 0..n_lon {
-                let z_b = z.as_ref().map_or(f64::NAN, |z| f64::from(z[[layer.bottom, j, i]]));
-                if self.below_ground(j, i, pb, z_b) {
+                let zb = z_b.map_or(f64::NAN, |r| f64::from(r[i]));
+                if ground.below(i, pb, zb) {
                     r.mask[i] = MaskReason::BelowGround as u8;
                     continue;
                 }
@@ -529,11 +581,9 @@ impl<'a> Context<'a> {
                         row[i] = (rot / (c.g0 / tb * grad)) as f32;
                     }
                 }
-                if let (Some(gb), Some(gt)) = (geo_b, geo_t) {
-                    let (ub, vb) =
-                        (f64::from(gb.geostrophic_u[[j, i]]), f64::from(gb.geostrophic_v[[j, i]]));
-                    let (uu, vu) =
-                        (f64::from(gt.geostrophic_u[[j, i]]), f64::from(gt.geostrophic_v[[j, i]]));
+                if let Some((gub, gvb, gut, gvt)) = geo {
+                    let (ub, vb) = (f64::from(gub[i]), f64::from(gvb[i]));
+                    let (uu, vu) = (f64::from(gut[i]), f64::from(gvt[i]));
                     if let Some(row) = r.adv.as_deref_mut() {
                         row[i] = (-(0.5 * (ub + uu) * dtdx + 0.5 * (vb + vu) * dtdy)) as f32;
                     }
@@ -541,23 +591,47 @@ impl<'a> Context<'a> {
                         row[i] = (ub * vu - vb * uu) as f32;
                     }
                 }
-                if let (Some(row), Some(n2)) = (r.eady.as_deref_mut(), &n2) {
-                    let n2 = f64::from(n2[[j, i]]);
+                if let (Some(row), Some(n2)) = (r.eady.as_deref_mut(), n2_row) {
+                    let n2 = f64::from(n2[i]);
                     if n2 > 0.0 {
                         row[i] = (EADY_COEFFICIENT * f.abs() * shear_per_m / n2.sqrt()) as f32;
                     }
                 }
                 if let (Some(au), Some(av), Some((ou, ov))) =
-                    (r.ageo_u.as_deref_mut(), r.ageo_v.as_deref_mut(), &obs)
+                    (r.ageo_u.as_deref_mut(), r.ageo_v.as_deref_mut(), obs_rows)
                 {
-                    au[i] = (f64::from(ou[[j, i]]) - ut) as f32;
-                    av[i] = (f64::from(ov[[j, i]]) - vt) as f32;
+                    au[i] = (f64::from(ou[i]) - ut) as f32;
+                    av[i] = (f64::from(ov[i]) - vt) as f32;
                 }
                 if ut.is_nan() || vt.is_nan() {
                     r.mask[i] = MaskReason::Missing as u8;
                 }
             }
         });
+    }
+}
+
+/// Surface pressure and surface height along one row.
+#[derive(Clone, Copy)]
+struct Ground<'a> {
+    ps: Option<&'a [f32]>,
+    zs: Option<&'a [f32]>,
+}
+
+impl Ground<'_> {
+    /// Whether column `i` lies under the surface at pressure `p` (Pa), where the geopotential
+    /// height at that pressure is `z` (NaN when unknown). Surface pressure decides when present,
+    /// surface height otherwise.
+    fn below(&self, i: usize, p: f64, z: f64) -> bool {
+        if let Some(ps) = self.ps {
+            let ps = f64::from(ps[i]);
+            return ps.is_finite() && p > ps;
+        }
+        if let Some(zs) = self.zs {
+            let zs = f64::from(zs[i]);
+            return zs.is_finite() && z.is_finite() && z < zs;
+        }
+        false
     }
 }
 
@@ -597,6 +671,24 @@ fn blank_below_ground(out: &mut LayerDiagnostics) {
         blank(u);
         blank(v);
     }
+}
+
+/// Row `j` of a `[lat, lon]` array in standard layout.
+fn grid_row(a: &Array2<f32>, j: usize) -> &[f32] {
+    let n = a.ncols();
+    &a.as_slice().expect("kernel arrays are in standard layout")[j * n..(j + 1) * n]
+}
+
+/// Row `j` of level `k` of a `[level, lat, lon]` array in standard layout.
+fn level_row<'a>(
+    a: &ArrayView3<'a, f32>,
+    n_lat: usize,
+    n_lon: usize,
+    k: usize,
+    j: usize,
+) -> &'a [f32] {
+    let start = (k * n_lat + j) * n_lon;
+    &a.to_slice().expect("kernel arrays are in standard layout")[start..start + n_lon]
 }
 
 fn row<'b>(a: &'b ArrayView2<'_, f32>, j: usize) -> &'b [f32] {
