@@ -27,21 +27,53 @@ fn abs_tol(key: &str) -> f64 {
         1e-12
     } else if key.ends_with("_per_day") {
         1e-4
-    } else if key == "direction_deg" {
-        1e-2
+    } else if key.ends_with("_ms") {
+        // Heights near 10 km are stored in f32 with a spacing of ~1e-3 m; a centred difference
+        // over 5° of latitude turns that into ~2e-9 of slope, times g0/f ≈ 7.5e5 s at 5°:
+        // ~1.5e-3 m/s of noise in the weakest-Coriolis rows.
+        2e-3
     } else {
         1e-4
     }
+}
+
+/// Relative tolerance. Quantities built from horizontal derivatives of thickness or layer-mean
+/// temperature carry the f32 quantisation of the inputs divided by the small neighbour
+/// differences of weak-gradient layers (~0.3 m of thickness change across a stencil above
+/// 250 hPa against ~1e-3 m of f32 spacing): up to ~2e-3 relative.
+fn rel_tol(key: &str) -> f64 {
+    if key.ends_with("_s2") || key == "balance_ratio" || key.ends_with("_per_day") {
+        2e-3
+    } else {
+        1e-4
+    }
+}
+
+fn number(v: &Value, key: &str) -> Option<f64> {
+    v.get(key).and_then(Value::as_f64)
 }
 
 fn compare(path: &str, key: &str, got: &Value, want: &Value, problems: &mut Vec<String>) {
     match (got, want) {
         (Value::Object(g), Value::Object(w)) => {
             for (k, wv) in w {
-                match g.get(k) {
-                    Some(gv) => compare(&format!("{path}.{k}"), k, gv, wv, problems),
-                    None => problems.push(format!("{path}.{k}: missing in the Rust document")),
+                let Some(gv) = g.get(k) else {
+                    problems.push(format!("{path}.{k}: missing in the Rust document"));
+                    continue;
+                };
+                if k == "direction_deg" {
+                    // The direction of a short vector is as uncertain as its components:
+                    // allow the angle the component tolerance subtends.
+                    let speed = number(want, "speed_ms").unwrap_or(0.0);
+                    let tol = (abs_tol("_ms") / speed.max(1e-12)).atan().to_degrees().max(1e-2);
+                    let (a, b) = (gv.as_f64().unwrap(), wv.as_f64().unwrap());
+                    let d = (a - b).rem_euclid(360.0);
+                    if d.min(360.0 - d) > tol {
+                        problems.push(format!("{path}.{k}: rust {a} vs numpy {b} (±{tol:.3}°)"));
+                    }
+                    continue;
                 }
+                compare(&format!("{path}.{k}"), k, gv, wv, problems);
             }
         }
         (Value::Array(g), Value::Array(w)) => {
@@ -55,25 +87,37 @@ fn compare(path: &str, key: &str, got: &Value, want: &Value, problems: &mut Vec<
         }
         (Value::Number(g), Value::Number(w)) => {
             let (g, w) = (g.as_f64().unwrap(), w.as_f64().unwrap());
-            let tol = if key == "direction_deg" {
-                // Directions wrap at 360°.
-                let d = (g - w).rem_euclid(360.0);
-                if d.min(360.0 - d) <= abs_tol(key) {
-                    return;
-                }
-                0.0
-            } else {
-                1e-4 * w.abs() + abs_tol(key)
-            };
             let integer = key.ends_with("cells")
                 || ["equator", "pole", "missing", "below_ground"].contains(&key);
-            if (integer && g != w) || (g - w).abs() > tol {
+            if (integer && g != w) || (g - w).abs() > rel_tol(key) * w.abs() + abs_tol(key) {
                 problems.push(format!("{path}: rust {g} vs numpy {w}"));
             }
         }
         (g, w) if g == w => {}
         (g, w) => problems.push(format!("{path}: rust {g} vs numpy {w}")),
     }
+}
+
+/// The turning of a layer is the sign of s = u_b v_t − v_b u_t of the box-mean geostrophic
+/// winds; where |s| is below the rounding of those winds either sign is right.
+fn turning_is_marginal(doc: &Value, layer: &Value) -> bool {
+    let level = |p: f64| {
+        doc["levels"].as_array().unwrap().iter().find(|l| l["pressure_hpa"].as_f64() == Some(p))
+    };
+    let (Some(b), Some(t)) =
+        (level(layer["bottom_hpa"].as_f64().unwrap()), level(layer["top_hpa"].as_f64().unwrap()))
+    else {
+        return false;
+    };
+    let (gb, gt) = (&b["geostrophic_wind"], &t["geostrophic_wind"]);
+    let (Some(ub), Some(vb), Some(ut), Some(vt)) =
+        (number(gb, "u_ms"), number(gb, "v_ms"), number(gt, "u_ms"), number(gt, "v_ms"))
+    else {
+        return false;
+    };
+    let s = ub * vt - vb * ut;
+    let noise = abs_tol("_ms") * (ub.hypot(vb) + ut.hypot(vt));
+    s.abs() <= noise
 }
 
 #[test]
@@ -84,7 +128,10 @@ fn profiles_equal_the_numpy_reference() {
     let mut problems = Vec::new();
     for case in &cases {
         let name = case["name"].as_str().unwrap();
-        let golden_path = root().join("tests/golden").join(format!("{name}.json"));
+        // SHEARBOX_GOLDEN_DIR points at freshly generated documents instead of the committed ones.
+        let golden_dir = std::env::var_os("SHEARBOX_GOLDEN_DIR")
+            .map_or_else(|| root().join("tests/golden"), PathBuf::from);
+        let golden_path = golden_dir.join(format!("{name}.json"));
         let golden: Value = serde_json::from_str(
             &std::fs::read_to_string(&golden_path)
                 .unwrap_or_else(|e| panic!("{}: {e}", golden_path.display())),
@@ -109,7 +156,15 @@ fn profiles_equal_the_numpy_reference() {
         let dataset_name = fixture.file_name().unwrap().to_string_lossy().to_string();
         let doc = query::profile(&dataset_name, &ds, &request, &Config::default())
             .unwrap_or_else(|e| panic!("{name}: {e}"));
-        let got = serde_json::to_value(&doc).unwrap();
+        let mut got = serde_json::to_value(&doc).unwrap();
+        let golden_layers = golden["layers"].as_array().cloned().unwrap_or_default();
+        if let Some(layers) = got["layers"].as_array_mut() {
+            for (g, w) in layers.iter_mut().zip(&golden_layers) {
+                if turning_is_marginal(&golden, w) {
+                    g["turning"] = w["turning"].clone();
+                }
+            }
+        }
         compare(name, "", &got, &golden, &mut problems);
     }
     assert!(problems.is_empty(), "{} differences:\n{}", problems.len(), problems.join("\n"));

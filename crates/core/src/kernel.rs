@@ -556,9 +556,14 @@ impl<'a> Context<'a> {
                     continue;
                 }
                 let tb = f64::from(t0[i]);
-                let dtdx = diff(t0, cols[i]) * dx;
-                let dtdy = (f64::from(tp[i]) - f64::from(tm[i])) * dy;
-                let grad = if tb.is_nan() { f64::NAN } else { dtdx.hypot(dtdy) };
+                // A missing T̄ at the cell removes its gradient too (physics.md: missing at the
+                // point or at a stencil neighbour), although the centred stencil skips it.
+                let (dtdx, dtdy) = if tb.is_nan() {
+                    (f64::NAN, f64::NAN)
+                } else {
+                    (diff(t0, cols[i]) * dx, (f64::from(tp[i]) - f64::from(tm[i])) * dy)
+                };
+                let grad = dtdx.hypot(dtdy);
                 r.grad[i] = grad as f32;
                 r.b[i] = (c.g0 / tb * grad) as f32;
                 if kind == RowKind::Equator {
