@@ -252,8 +252,10 @@ def _longitude_order(lon_raw):
     n = len(vals)
     if n > 1:
         gaps = np.diff(np.concatenate([vals, [vals[0] + 360.0]]))
-        cut = int(np.argmax(gaps))  # the widest gap follows element `cut`
-        start = (cut + 1) % n
+        # The widest gap follows element `cut`; a circle without a wider gap than the one
+        # closing it (a global grid) keeps its smallest longitude first.
+        cut = int(np.argmax(gaps))
+        start = 0 if gaps[cut] - gaps[-1] <= 1e-6 else (cut + 1) % n
         keep = np.roll(keep, -start)
         vals = np.roll(vals, -start)
         vals = vals[0] + np.concatenate([[0.0], np.cumsum(np.mod(np.diff(vals), 360.0))])
@@ -717,7 +719,9 @@ def box_mean(q, weights, inbox):
     sel = inbox & ~np.isnan(q)
     if not sel.any():
         return None
-    return float(np.sum(weights[sel] * q[sel]) / np.sum(weights[sel]))
+    # "+ 0.0" turns a negative zero into a positive one, so an exactly zero mean is written
+    # as 0.0 whatever the signs of the zero terms were.
+    return float(np.sum(weights[sel] * q[sel]) / np.sum(weights[sel])) + 0.0
 
 
 def vector(u, v, weights, inbox):

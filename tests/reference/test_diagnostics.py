@@ -9,6 +9,7 @@ named beside its check.
 from __future__ import annotations
 
 import datetime
+import json
 import math
 import os
 import sys
@@ -370,6 +371,65 @@ class Normalisation(unittest.TestCase):
             self.assertEqual(layer["valid_cells"] + sum(counts.values()), len(lat) * n_lon)
             # Below ground, even thickness is missing; at the poles it stays defined.
         self.assertIsNotNone(doc["layers"][0]["thickness_m"])
+
+
+GOLDEN_DIR = os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "golden")
+
+
+class Goldens(unittest.TestCase):
+    """Properties the committed goldens must have whatever the fixtures hold."""
+
+    def goldens(self):
+        docs = {}
+        for name in sorted(os.listdir(GOLDEN_DIR)):
+            if name.endswith(".json"):
+                with open(os.path.join(GOLDEN_DIR, name), encoding="utf-8") as fh:
+                    docs[name[:-5]] = json.load(fh)
+        self.assertTrue(docs, "no golden files")
+        return docs
+
+    def test_every_case_has_a_golden(self):
+        with open(os.path.join(os.path.dirname(os.path.abspath(__file__)), "cases.json"),
+                  encoding="utf-8") as fh:
+            cases = json.load(fh)
+        docs = self.goldens()
+        self.assertEqual(sorted(c["name"] for c in cases), sorted(docs))
+        for case in cases:
+            self.assertEqual(docs[case["name"]]["dataset"], os.path.basename(case["fixture"]))
+
+    def test_thermal_wind_is_the_difference_of_geostrophic_winds(self):
+        # physics.md, "Thermal wind of a layer": with the geopotential method V_T equals
+        # V_g(top) - V_g(bottom) to rounding. Box means are linear, so the box-mean vectors
+        # agree too wherever the three means run over the same cells (equal valid counts).
+        compared = 0
+        for name, doc in self.goldens().items():
+            levels = {lev["pressure_hpa"]: lev for lev in doc["levels"]}
+            for layer in doc["layers"]:
+                bottom, top = levels[layer["bottom_hpa"]], levels[layer["top_hpa"]]
+                if layer["thickness_method"] != "geopotential" or layer["thermal_wind"] is None:
+                    continue
+                if not bottom["valid_cells"] == top["valid_cells"] == layer["valid_cells"]:
+                    continue
+                for comp in ("u_ms", "v_ms"):
+                    diff = top["geostrophic_wind"][comp] - bottom["geostrophic_wind"][comp]
+                    self.assertAlmostEqual(layer["thermal_wind"][comp], diff, delta=1e-9,
+                                           msg=f"{name} {layer['bottom_hpa']}-{layer['top_hpa']}")
+                compared += 1
+        self.assertGreater(compared, 30)
+
+    def test_balance_ratio_near_one_on_the_hydrostatic_fixture(self):
+        # tidy_nc4.nc builds its heights from the trapezoid of virtual temperature in ln p
+        # (fixtures/README.md; hypsometric equation, U.S. Standard Atmosphere 1976) and carries
+        # the humidity, so the torques balance up to the float32 storage: ratio 1 within 1e-3.
+        seen = 0
+        for name, doc in self.goldens().items():
+            if doc["dataset"] != "tidy_nc4.nc":
+                continue
+            for layer in doc["layers"]:
+                if layer["balance_ratio"] is not None:
+                    self.assertLess(abs(layer["balance_ratio"] - 1.0), 1e-3, name)
+                    seen += 1
+        self.assertGreater(seen, 10)
 
 
 if __name__ == "__main__":
