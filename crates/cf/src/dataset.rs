@@ -1,8 +1,7 @@
 //! [`Dataset`]: open, recognise, normalise and read hyperslabs.
 
-use std::panic::{AssertUnwindSafe, catch_unwind};
 use std::path::{Path, PathBuf};
-use std::sync::{Mutex, MutexGuard};
+use std::sync::Arc;
 
 use ndarray::{Array2, Array3, ArrayD, Axis, IxDyn};
 use netcdf::Extent;
@@ -10,6 +9,7 @@ use shearbox_core::{Fields, FieldsBuilder, Grid, Levels, Selection};
 
 use crate::calendar::{self, Calendar};
 use crate::format::{self, Magic};
+use crate::io;
 use crate::meta::{self, Attr, DType, VarMeta};
 use crate::recognise::{self, CoordDims, Match};
 use crate::units::{self, Conv};
@@ -260,18 +260,19 @@ struct Coord {
 ///
 /// # Thread safety
 ///
-/// The netCDF-C library is not thread-safe; the `netcdf` crate takes one process-wide lock
-/// around every library call. The handle lives inside the `Dataset` behind a [`Mutex`] and
-/// no library object (variable, attribute) outlives a method call: each read looks its
-/// variables up again under the dataset's mutex, so a multi-call read (several variables,
-/// two hyperslabs when a block wraps) is one consistent critical section per dataset, and
-/// checks that the dimensions still have the lengths seen at open. `Dataset` is therefore
-/// `Send + Sync`: share it in an `Arc` and read from many threads; reads of one dataset
-/// are serialised, reads of different datasets are serialised by the crate's global lock,
-/// and the arrays come back as owned `f32` data for parallel computing afterwards.
+/// Invariant: every call into the netCDF-C library made by this crate runs on the crate's
+/// single netCDF thread (module `io`), and no library object (variable, attribute, handle
+/// borrow) outlives the job that uses it. The dataset keeps the file handle in an `Arc` that
+/// only jobs touch; `Drop` sends it to that thread to be closed. One block read (every
+/// variable, two hyperslabs when the block wraps) is a single job, so it never interleaves
+/// with another read, and it checks that the dimensions still have the lengths seen at open.
+/// `Dataset` is therefore `Send + Sync`: share it in an `Arc` and call it from many threads.
+/// Library work is serialised (as it must be); unpacking and reordering run on the calling
+/// thread, and the arrays come back as owned `f32` data for parallel computing afterwards.
 pub struct Dataset {
     path: PathBuf,
-    file: Mutex<netcdf::File>,
+    /// `Some` for the dataset's whole life; taken by `Drop` to close it on the netCDF thread.
+    file: Option<Arc<netcdf::File>>,
     format: &'static str,
     grid: Grid,
     levels: Levels,
@@ -291,19 +292,31 @@ pub struct Dataset {
     fields: Vec<FieldVar>,
 }
 
-/// Runs library calls, turning a panic inside the `netcdf` crate (it unwraps some library
-/// errors) into [`CfError::Damaged`].
-fn guard<T>(path: &Path, what: &str, f: impl FnOnce() -> T) -> Result<T, CfError> {
-    catch_unwind(AssertUnwindSafe(f)).map_err(|payload| {
-        let msg = payload
-            .downcast_ref::<String>()
-            .cloned()
-            .or_else(|| payload.downcast_ref::<&str>().map(|s| s.to_string()))
-            .unwrap_or_else(|| "unknown failure".to_string());
-        CfError::Damaged {
-            file: path.to_path_buf(),
-            reason: format!("the netCDF library failed while {what} ({msg})"),
-        }
+/// Runs library calls on the netCDF thread ([`io::run`]), turning a panic inside the
+/// `netcdf` crate (it unwraps some library errors) into [`CfError::Damaged`].
+fn on_io<T, F>(path: &Path, what: &str, f: F) -> Result<T, CfError>
+where
+    T: Send + 'static,
+    F: FnOnce() -> T + Send + 'static,
+{
+    io::run(f).map_err(|msg| CfError::Damaged {
+        file: path.to_path_buf(),
+        reason: format!("the netCDF library failed while {what} ({msg})"),
+    })
+}
+
+/// Reads every value of a variable as `f64`.
+fn read_all(path: &Path, file: &Arc<netcdf::File>, name: &str) -> Result<Vec<f64>, CfError> {
+    let (file, owned) = (Arc::clone(file), name.to_string());
+    on_io(path, "reading a coordinate", move || {
+        file.variable(&owned)
+            .ok_or_else(|| netcdf::Error::NotFound(owned.clone()))
+            .and_then(|var| var.get_values::<f64, _>(..))
+    })?
+    .map_err(|source| CfError::Read {
+        file: path.to_path_buf(),
+        variable: name.to_string(),
+        source,
     })
 }
 
@@ -320,8 +333,15 @@ impl Dataset {
         let file_err = |source| CfError::Io { file: path.to_path_buf(), source };
         std::fs::metadata(path).map_err(file_err)?;
         let (magic, check) = format::inspect(path).map_err(file_err)?;
-        let file = match guard(path, "opening the file", || netcdf::open(path))? {
-            Ok(f) => f,
+        let owned = path.to_path_buf();
+        let opened = on_io(path, "opening the file", move || {
+            netcdf::open(&owned).map(|f| {
+                let vars = meta::scan(&f);
+                (Arc::new(f), vars)
+            })
+        })?;
+        let (file, vars) = match opened {
+            Ok(x) => x,
             Err(source) => {
                 return Err(match check {
                     Err(reason) => CfError::Damaged { file: path.to_path_buf(), reason },
@@ -330,15 +350,21 @@ impl Dataset {
             }
         };
         if let Err(reason) = check {
+            io::drop_there(file);
             return Err(CfError::Damaged { file: path.to_path_buf(), reason });
         }
-        let vars = guard(path, "reading the header", || meta::scan(&file))?;
-        Self::build(path, file, magic, &vars, overrides)
+        let mut file = Some(file);
+        let built = Self::build(path, &mut file, magic, &vars, overrides);
+        if let Some(f) = file {
+            // Not taken by a dataset (an error): close it on the netCDF thread.
+            io::drop_there(f);
+        }
+        built
     }
 
     fn build(
         path: &Path,
-        file: netcdf::File,
+        file: &mut Option<Arc<netcdf::File>>,
         magic: Magic,
         vars: &[VarMeta],
         overrides: &VarOverrides,
@@ -414,16 +440,11 @@ impl Dataset {
         let read_coord = |c: &Coord| -> Result<Vec<f64>, CfError> {
             let v = &vars[c.index];
             let packing = Packing::from_meta(path, v)?;
-            let raw = guard(path, "reading a coordinate", || {
-                file.variable(&v.name)
-                    .ok_or_else(|| netcdf::Error::NotFound(v.name.clone()))
-                    .and_then(|var| var.get_values::<f64, _>(..))
-            })?
-            .map_err(|source| CfError::Read {
+            let handle = file.as_ref().ok_or_else(|| CfError::Damaged {
                 file: path.to_path_buf(),
-                variable: v.name.clone(),
-                source,
+                reason: "internal: the file handle is gone".to_string(),
             })?;
+            let raw = read_all(path, handle, &v.name)?;
             Ok(raw.into_iter().map(|x| packing.value(x)).collect())
         };
         let not_mono =
@@ -693,7 +714,7 @@ impl Dataset {
         }
         Ok(Dataset {
             path: path.to_path_buf(),
-            file: Mutex::new(file),
+            file: file.take(),
             format: magic.name(),
             n_lat: lat.len(),
             n_level: lev_file.len(),
@@ -891,12 +912,6 @@ impl Dataset {
         }
     }
 
-    fn lock(&self) -> MutexGuard<'_, netcdf::File> {
-        // A panic while the lock was held (caught by `guard`) poisons the mutex; the handle
-        // itself is still valid, so carry on.
-        self.file.lock().unwrap_or_else(|p| p.into_inner())
-    }
-
     /// Reads one time step of every recognised field on a block of the grid (`None`: the
     /// whole grid), normalised. Only the block is read: one hyperslab per variable, two when
     /// the block wraps around the file's column order. The result is identical to reading
@@ -964,17 +979,42 @@ impl Dataset {
         };
         let col_runs = self.lon_map.runs(col_start, col_len);
 
+        let pair = self.has(Role::EastwardWind) && self.has(Role::NorthwardWind);
+        let to_read: Vec<FieldVar> = self
+            .fields
+            .iter()
+            .filter(|fv| pair || !matches!(fv.role, Role::EastwardWind | Role::NorthwardWind))
+            .cloned()
+            .collect();
+        // One job on the netCDF thread reads every hyperslab of the block; unpacking and
+        // reordering happen here, on the caller's thread.
+        let file = Arc::clone(self.file.as_ref().ok_or_else(|| CfError::Damaged {
+            file: self.path.clone(),
+            reason: "internal: the file handle is gone".to_string(),
+        })?);
+        let plan = to_read.clone();
+        let (n_level, runs) = (self.n_level, col_runs.clone());
+        let raw = on_io(&self.path, "reading a block", move || {
+            plan.iter()
+                .map(|fv| read_pieces(&file, fv, time_idx, n_level, row_run, &runs))
+                .collect::<Vec<_>>()
+        })?;
         let mut arrays: Vec<(Role, ArrayD<f32>)> = Vec::new();
-        {
-            let file = self.lock();
-            let pair = self.has(Role::EastwardWind) && self.has(Role::NorthwardWind);
-            for fv in &self.fields {
-                if matches!(fv.role, Role::EastwardWind | Role::NorthwardWind) && !pair {
-                    continue;
+        for (fv, pieces) in to_read.iter().zip(raw) {
+            let pieces = pieces.map_err(|e| match e {
+                ReadFail::Library(source) => {
+                    CfError::Read { file: self.path.clone(), variable: fv.name.clone(), source }
                 }
-                let a = self.read_var(&file, fv, time_idx, row_run, &col_runs)?;
-                arrays.push((fv.role, a));
-            }
+                ReadFail::Changed(lens) => CfError::Damaged {
+                    file: self.path.clone(),
+                    reason: format!(
+                        "variable {:?} has dimension lengths {lens:?}, {:?} at open: the file \
+                         changed while open",
+                        fv.name, fv.lens
+                    ),
+                },
+            })?;
+            arrays.push((fv.role, self.assemble(fv, &pieces, row_run, &col_runs)?));
         }
         let mut b = FieldsBuilder::new(grid, self.levels.clone());
         let mut u = None;
@@ -1012,63 +1052,15 @@ impl Dataset {
         b.build().map_err(core_err(&self.path, "assembling the fields"))
     }
 
-    /// Reads one variable's block: `[level, lat, lon]` or `[lat, lon]`, normalised and
-    /// converted. Called with the dataset's mutex held.
-    fn read_var(
+    /// Puts one variable's pieces into `[level, lat, lon]` or `[lat, lon]` order, joins
+    /// them along longitude and converts the values.
+    fn assemble(
         &self,
-        file: &netcdf::File,
         fv: &FieldVar,
-        t: usize,
+        pieces: &[ArrayD<f64>],
         rows: Run,
         cols: &[Run],
     ) -> Result<ArrayD<f32>, CfError> {
-        let read_err =
-            |source| CfError::Read { file: self.path.clone(), variable: fv.name.clone(), source };
-        let what = format!("reading variable {:?}", fv.name);
-        let pieces = guard(
-            &self.path,
-            &what,
-            || -> Result<Result<Vec<ArrayD<f64>>, CfError>, netcdf::Error> {
-                let var = file
-                    .variable(&fv.name)
-                    .ok_or_else(|| netcdf::Error::NotFound(fv.name.clone()))?;
-                let lens: Vec<usize> = var.dimensions().iter().map(|d| d.len()).collect();
-                if lens != fv.lens {
-                    return Ok(Err(CfError::Damaged {
-                        file: self.path.clone(),
-                        reason: format!(
-                            "variable {:?} has dimension lengths {lens:?}, {:?} at open: the file \
-                         changed while open",
-                            fv.name, fv.lens
-                        ),
-                    }));
-                }
-                let mut out = Vec::new();
-                for c in cols {
-                    let extents: Vec<Extent> = fv
-                        .kinds
-                        .iter()
-                        .map(|k| match k {
-                            DimKind::Time => Extent::Index(t),
-                            DimKind::Single => Extent::Index(0),
-                            DimKind::Level => {
-                                Extent::SliceCount { start: 0, count: self.n_level, stride: 1 }
-                            }
-                            DimKind::Lat => {
-                                Extent::SliceCount { start: rows.start, count: rows.len, stride: 1 }
-                            }
-                            DimKind::Lon => {
-                                Extent::SliceCount { start: c.start, count: c.len, stride: 1 }
-                            }
-                        })
-                        .collect();
-                    out.push(var.get::<f64, _>(extents)?);
-                }
-                Ok(Ok(out))
-            },
-        )?
-        .map_err(read_err)??;
-
         // Axes of each piece: the non-indexed dimensions in file order.
         let kept: Vec<DimKind> = fv
             .kinds
@@ -1128,6 +1120,59 @@ impl Dataset {
             file: self.path.clone(),
             reason: format!("internal: {e}"),
         })
+    }
+}
+
+/// Why reading a variable's pieces failed.
+enum ReadFail {
+    /// The library returned an error.
+    Library(netcdf::Error),
+    /// The dimensions no longer have the lengths seen at open.
+    Changed(Vec<usize>),
+}
+
+/// Reads the hyperslabs of one variable for one time step: one per column run. Runs on the
+/// netCDF thread.
+fn read_pieces(
+    file: &netcdf::File,
+    fv: &FieldVar,
+    t: usize,
+    n_level: usize,
+    rows: Run,
+    cols: &[Run],
+) -> Result<Vec<ArrayD<f64>>, ReadFail> {
+    let var = file
+        .variable(&fv.name)
+        .ok_or_else(|| ReadFail::Library(netcdf::Error::NotFound(fv.name.clone())))?;
+    let lens: Vec<usize> = var.dimensions().iter().map(|d| d.len()).collect();
+    if lens != fv.lens {
+        return Err(ReadFail::Changed(lens));
+    }
+    cols.iter()
+        .map(|c| {
+            let extents: Vec<Extent> = fv
+                .kinds
+                .iter()
+                .map(|k| match k {
+                    DimKind::Time => Extent::Index(t),
+                    DimKind::Single => Extent::Index(0),
+                    DimKind::Level => Extent::SliceCount { start: 0, count: n_level, stride: 1 },
+                    DimKind::Lat => {
+                        Extent::SliceCount { start: rows.start, count: rows.len, stride: 1 }
+                    }
+                    DimKind::Lon => Extent::SliceCount { start: c.start, count: c.len, stride: 1 },
+                })
+                .collect();
+            var.get::<f64, _>(extents).map_err(ReadFail::Library)
+        })
+        .collect()
+}
+
+impl Drop for Dataset {
+    fn drop(&mut self) {
+        if let Some(file) = self.file.take() {
+            io::drop_there(file);
+        }
     }
 }
 

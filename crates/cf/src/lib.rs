@@ -32,17 +32,19 @@
 //!   are `NaN`.
 //! - **Time** is decoded by the [`calendar`] module (day-number arithmetic for the six CF
 //!   calendars) into ISO 8601 UTC strings.
-//! - **Never panic.** Every library call goes through a guard that turns a panic inside the
-//!   `netcdf` crate into [`CfError::Damaged`]; classic-format files are checked against the
+//! - **Never panic.** A panic inside the `netcdf` crate (it unwraps some library errors) is
+//!   caught and becomes [`CfError::Damaged`]; classic-format files are checked against the
 //!   data size their header describes (the C library reads missing bytes as zeros); indices
 //!   are checked before use.
-//! - **Thread safety.** See [`Dataset`]: the handle lives behind a mutex inside the dataset,
-//!   no library object escapes a method, and `Dataset` is `Send + Sync`.
+//! - **Thread safety.** Every library call runs on one dedicated thread (netCDF-C is not
+//!   thread-safe, and HDF5 prints its diagnostics on any other thread); see [`Dataset`].
+//!   `Dataset` is `Send + Sync`.
 
 pub mod calendar;
 mod dataset;
 mod error;
 mod format;
+mod io;
 mod meta;
 mod recognise;
 mod role;
