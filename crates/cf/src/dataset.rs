@@ -333,6 +333,12 @@ impl Dataset {
         let file_err = |source| CfError::Io { file: path.to_path_buf(), source };
         std::fs::metadata(path).map_err(file_err)?;
         let (magic, check) = format::inspect(path).map_err(file_err)?;
+        // A classic file whose own header does not fit is refused before the library sees
+        // it: netCDF-C would size its tables from the damaged counts (seconds of work and
+        // gigabytes of memory for one flipped byte) before failing.
+        if let Err(reason) = check {
+            return Err(CfError::Damaged { file: path.to_path_buf(), reason });
+        }
         let owned = path.to_path_buf();
         let opened = on_io(path, "opening the file", move || {
             netcdf::open(&owned).map(|f| {
@@ -342,17 +348,8 @@ impl Dataset {
         })?;
         let (file, vars) = match opened {
             Ok(x) => x,
-            Err(source) => {
-                return Err(match check {
-                    Err(reason) => CfError::Damaged { file: path.to_path_buf(), reason },
-                    Ok(()) => CfError::Open { file: path.to_path_buf(), source },
-                });
-            }
+            Err(source) => return Err(CfError::Open { file: path.to_path_buf(), source }),
         };
-        if let Err(reason) = check {
-            io::drop_there(file);
-            return Err(CfError::Damaged { file: path.to_path_buf(), reason });
-        }
         let mut file = Some(file);
         let built = Self::build(path, &mut file, magic, &vars, overrides);
         if let Some(f) = file {
