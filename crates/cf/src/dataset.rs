@@ -320,9 +320,8 @@ fn read_all(path: &Path, file: &Arc<netcdf::File>, name: &str) -> Result<Vec<f64
     })
 }
 
-fn core_err(path: &Path, what: &str) -> impl FnOnce(shearbox_core::CoreError) -> CfError {
+fn core_err(path: &Path, what: &'static str) -> impl FnOnce(shearbox_core::CoreError) -> CfError {
     let file = path.to_path_buf();
-    let what = what.to_string();
     move |source| CfError::Core { file, what, source }
 }
 
@@ -903,7 +902,7 @@ impl Dataset {
                     first: self.times.first().cloned().unwrap_or_else(|| "(none)".into()),
                     last: self.times.last().cloned().unwrap_or_else(|| "(none)".into()),
                     count: self.times.len(),
-                    calendar: self.calendar.cf_name(),
+                    calendar: self.calendar,
                 })
             }
         }

@@ -249,8 +249,8 @@ pub enum CfError {
         last: String,
         /// Number of time steps.
         count: usize,
-        /// The file's calendar name.
-        calendar: &'static str,
+        /// The file's calendar.
+        calendar: crate::Calendar,
     },
     /// A time index past the end.
     #[error(
@@ -301,7 +301,7 @@ pub enum CfError {
         /// The file.
         file: PathBuf,
         /// What was being built.
-        what: String,
+        what: &'static str,
         /// The kernel's error.
         #[source]
         source: shearbox_core::CoreError,

@@ -92,7 +92,8 @@ fn wrong_units() -> TestResult {
 #[test]
 fn non_monotonic_coordinates() -> TestResult {
     let dir = tmp()?;
-    let cases: [(Role, fn(&mut Axes), usize); 4] = [
+    type Edit = fn(&mut Axes);
+    let cases: [(Role, Edit, usize); 4] = [
         (Role::Latitude, |a| a.lat = vec![-30.0, -15.0, 15.0, 0.0, 30.0], 3),
         (Role::Longitude, |a| a.lon = vec![0.0, 90.0, 45.0, 270.0], 2),
         (Role::Longitude, |a| a.lon = vec![0.0, 90.0, 90.0, 270.0], 2),
