@@ -201,8 +201,24 @@ fn opt_rows_mut(a: &mut Option<Array2<f32>>, n_lon: usize) -> Vec<Option<&mut [f
     }
 }
 
+type RowIter<'a> = std::vec::IntoIter<Option<&'a mut [f32]>>;
+
+/// The rows of an optional pair of outputs (eastward, northward), as for [`opt_rows_mut`].
+fn pair_rows_mut(
+    a: &mut Option<(Array2<f32>, Array2<f32>)>,
+    n_lon: usize,
+) -> (RowIter<'_>, RowIter<'_>) {
+    match a {
+        Some((u, v)) => (
+            rows_mut(u, n_lon).map(Some).collect::<Vec<_>>().into_iter(),
+            rows_mut(v, n_lon).map(Some).collect::<Vec<_>>().into_iter(),
+        ),
+        None => (Vec::new().into_iter(), Vec::new().into_iter()),
+    }
+}
+
 /// Takes the next row of an optional output (an empty vector stands for "absent").
-fn next_opt<'a>(v: &mut std::vec::IntoIter<Option<&'a mut [f32]>>) -> Option<&'a mut [f32]> {
+fn next_opt<'a>(v: &mut RowIter<'a>) -> Option<&'a mut [f32]> {
     v.next().flatten()
 }
 
@@ -237,13 +253,9 @@ impl<'a> Context<'a> {
 
     /// The surface fields of row `j`, to tell which cells lie under the ground.
     fn ground_row(&self, j: usize) -> Ground<'a> {
-        let n = self.n_lon;
-        let cut = |a: ArrayView2<'a, f32>| -> &'a [f32] {
-            &a.to_slice().expect("standard layout")[j * n..(j + 1) * n]
-        };
         Ground {
-            ps: self.fields.surface_pressure().map(cut),
-            zs: self.fields.surface_height().map(cut),
+            ps: self.fields.surface_pressure().map(|a| row(&a, j)),
+            zs: self.fields.surface_height().map(|a| row(&a, j)),
         }
     }
 
@@ -328,13 +340,7 @@ impl<'a> Context<'a> {
         {
             let mut th_t = opt_rows_mut(&mut thickness_t, n_lon).into_iter();
             let mut n2_rows = opt_rows_mut(&mut n2, n_lon).into_iter();
-            let (mut obs_u, mut obs_v) = match &mut obs {
-                Some((a, b)) => (
-                    rows_mut(a, n_lon).map(Some).collect::<Vec<_>>().into_iter(),
-                    rows_mut(b, n_lon).map(Some).collect::<Vec<_>>().into_iter(),
-                ),
-                None => (Vec::new().into_iter(), Vec::new().into_iter()),
-            };
+            let (mut obs_u, mut obs_v) = pair_rows_mut(&mut obs, n_lon);
             let rows: Vec<_> = rows_mut(&mut thickness, n_lon)
                 .zip(rows_mut(&mut tbar, n_lon))
                 .map(|(th, tb)| {
@@ -492,13 +498,7 @@ impl<'a> Context<'a> {
         let mut adv = opt_rows_mut(&mut out.thermal_advection, n_lon).into_iter();
         let mut turn = opt_rows_mut(&mut out.turning, n_lon).into_iter();
         let mut eady = opt_rows_mut(&mut out.eady_growth_rate, n_lon).into_iter();
-        let (mut ageo_u, mut ageo_v) = match &mut out.ageostrophic_shear {
-            Some((a, b)) => (
-                rows_mut(a, n_lon).map(Some).collect::<Vec<_>>().into_iter(),
-                rows_mut(b, n_lon).map(Some).collect::<Vec<_>>().into_iter(),
-            ),
-            None => (Vec::new().into_iter(), Vec::new().into_iter()),
-        };
+        let (mut ageo_u, mut ageo_v) = pair_rows_mut(&mut out.ageostrophic_shear, n_lon);
         let rows: Vec<StencilRow<'_>> = rows_mut(&mut out.thermal_wind_u, n_lon)
             .zip(rows_mut(&mut out.thermal_wind_v, n_lon))
             .zip(rows_mut(&mut out.temperature_gradient, n_lon))
@@ -534,13 +534,12 @@ impl<'a> Context<'a> {
             let ground = self.ground_row(j);
             let n_lat = grid.n_lat();
             let z_b = z.as_ref().map(|z| level_row(z, n_lat, n_lon, layer.bottom, j));
-            let cut = |a| grid_row(a, j);
             let geo = geo_b.zip(geo_t).map(|(b, t)| {
                 (
-                    cut(&b.geostrophic_u),
-                    cut(&b.geostrophic_v),
-                    cut(&t.geostrophic_u),
-                    cut(&t.geostrophic_v),
+                    row(&b.geostrophic_u.view(), j),
+                    row(&b.geostrophic_v.view(), j),
+                    row(&t.geostrophic_u.view(), j),
+                    row(&t.geostrophic_v.view(), j),
                 )
             });
             let n2_row = n2.as_ref().map(|a| row(a, j));
@@ -678,12 +677,6 @@ fn blank_below_ground(out: &mut LayerDiagnostics) {
     }
 }
 
-/// Row `j` of a `[lat, lon]` array in standard layout.
-fn grid_row(a: &Array2<f32>, j: usize) -> &[f32] {
-    let n = a.ncols();
-    &a.as_slice().expect("kernel arrays are in standard layout")[j * n..(j + 1) * n]
-}
-
 /// Row `j` of level `k` of a `[level, lat, lon]` array in standard layout.
 fn level_row<'a>(
     a: &ArrayView3<'a, f32>,
@@ -696,9 +689,10 @@ fn level_row<'a>(
     &a.to_slice().expect("kernel arrays are in standard layout")[start..start + n_lon]
 }
 
-fn row<'b>(a: &'b ArrayView2<'_, f32>, j: usize) -> &'b [f32] {
+/// Row `j` of a `[lat, lon]` array in standard layout.
+fn row<'a>(a: &ArrayView2<'a, f32>, j: usize) -> &'a [f32] {
     let n = a.ncols();
-    &a.as_slice().expect("kernel arrays are in standard layout")[j * n..(j + 1) * n]
+    &a.to_slice().expect("kernel arrays are in standard layout")[j * n..(j + 1) * n]
 }
 
 /// ∂F/∂λ along a row (per radian) at the column of `s`.
