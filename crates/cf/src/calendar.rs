@@ -558,6 +558,18 @@ pub fn instant(dt: &DateTime, calendar: Calendar) -> Option<i128> {
     Some(i128::from(day) * i128::from(US_PER_DAY) + i128::from(dt.micros_of_day()))
 }
 
+/// The proleptic Gregorian date and time `secs` seconds after 1970-01-01T00:00:00Z (for
+/// stamping outputs with the current time).
+pub fn from_unix_seconds(secs: i64) -> DateTime {
+    let cal = Calendar::ProlepticGregorian;
+    let epoch = day_number(cal, 1970, 1, 1).unwrap_or(0);
+    DateTime::from_day_and_micros(
+        cal,
+        epoch + secs.div_euclid(86_400),
+        secs.rem_euclid(86_400) * 1_000_000,
+    )
+}
+
 /// Parses an ISO 8601 instant as written by a user (`2026-01-15T06:00:00Z`, `…T06:00Z`,
 /// `…T06:00:00`, `2026-01-15T06`, `2026-01-15`, with a space instead of `T` too). A zone
 /// other than UTC is shifted to UTC with proleptic Gregorian arithmetic. The day is only

@@ -870,6 +870,13 @@ impl Dataset {
             .collect()
     }
 
+    /// Each time step's instant, in file order: microseconds since day 0 of the file's
+    /// [`Calendar`] ([`calendar::instant`]), comparable between files of the same calendar.
+    /// Empty when the file has no time coordinate.
+    pub fn time_instants(&self) -> &[i128] {
+        &self.time_keys
+    }
+
     /// The index of a time step (file order). `Latest` is the latest instant (the last
     /// step of the usual increasing time axis); `At` must match a step exactly (to the
     /// microsecond). A file without a time coordinate answers 0 to `Latest`.

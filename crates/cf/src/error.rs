@@ -295,6 +295,17 @@ pub enum CfError {
         /// What does not fit.
         reason: String,
     },
+    /// Writing (or reading back) an output file failed.
+    #[error("{}: {what}{}", file.display(), source.as_ref().map(|e| format!(": {e}")).unwrap_or_default())]
+    Write {
+        /// The output file.
+        file: PathBuf,
+        /// What was being done, or what is wrong.
+        what: String,
+        /// The library's error, when it raised one.
+        #[source]
+        source: Option<Box<netcdf::Error>>,
+    },
     /// The coordinates or fields were refused by the kernel's validation.
     #[error("{}: {what}: {source}", file.display())]
     Core {

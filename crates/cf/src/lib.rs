@@ -46,9 +46,11 @@ mod error;
 mod format;
 mod io;
 mod meta;
+pub mod output;
 mod recognise;
 mod role;
 mod units;
+pub mod write;
 
 pub use calendar::Calendar;
 pub use dataset::Dataset;

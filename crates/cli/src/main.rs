@@ -1,10 +1,14 @@
-//! The `shearbox` command line: inspect a file, profile a box.
+//! The `shearbox` command line: inspect a file, profile a box, compute every diagnostic of
+//! many files into CF NetCDF (`compute`), and join the parts of a sharded run (`join`).
 //!
 //! Every command reads through `shearbox-cf`, computes with `shearbox-core`, and prints the
 //! documents of `shearbox-server::wire`, so what the command line prints is what the service
 //! returns.
 
 mod args;
+mod compute;
+mod join;
+mod staging;
 mod table;
 
 use std::io::Write;
@@ -69,12 +73,33 @@ enum Command {
         #[arg(long, default_value_t = 5.0)]
         equator_band: f64,
     },
+    /// Every diagnostic of every time step of many files, into one CF NetCDF-4 file
+    /// (streamed one step at a time; splits across a job array with --shard).
+    Compute(compute::ComputeArgs),
+    /// Join the parts of a sharded `compute` run along time into one file.
+    Join(join::JoinArgs),
 }
+
+/// The run stopped on SIGINT, SIGTERM or SIGHUP (exit status 130).
+#[derive(Debug)]
+struct Interrupted;
+
+impl std::fmt::Display for Interrupted {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str("interrupted; no output was written and earlier outputs are unchanged")
+    }
+}
+
+impl std::error::Error for Interrupted {}
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
     match run(cli) {
         Ok(()) => ExitCode::SUCCESS,
+        Err(e) if e.is::<Interrupted>() => {
+            eprintln!("\nshearbox: {e}");
+            ExitCode::from(130)
+        }
         Err(e) => {
             eprintln!("shearbox: error: {e:#}");
             ExitCode::FAILURE
@@ -97,6 +122,8 @@ fn file_name(path: &Path) -> String {
 fn run(cli: Cli) -> Result<()> {
     let mut out = std::io::stdout().lock();
     match cli.command {
+        Command::Compute(args) => compute::run(args)?,
+        Command::Join(args) => join::run(args)?,
         Command::Inspect { file, json, vars } => {
             let ds = Dataset::open(&file, &overrides(&vars)?)?;
             let doc = DatasetDoc::new(&file_name(&file), &ds);
