@@ -8,12 +8,13 @@ use shearbox_cf::{Capability, Dataset, Recognised};
 use shearbox_core::{
     BBox, BoxProfile, LayerMeans, LevelMeans, MeanTemperatureKind, ThicknessMethod, Turning, Vector,
 };
+use utoipa::ToSchema;
 
 /// Seconds per day, for per-day rates.
 const SECONDS_PER_DAY: f64 = 86_400.0;
 
 /// A horizontal vector with its speed and its direction in the wind convention.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, ToSchema)]
 pub struct WireVector {
     /// Eastward component, m s⁻¹.
     pub u_ms: f64,
@@ -32,7 +33,7 @@ impl From<Vector> for WireVector {
 }
 
 /// Box means at one level.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, ToSchema)]
 pub struct LevelDoc {
     /// Pressure, hPa.
     pub pressure_hpa: f64,
@@ -49,7 +50,7 @@ pub struct LevelDoc {
 }
 
 /// Cells of the box by the reason the thermal wind is undefined there.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, ToSchema)]
 pub struct MaskedDoc {
     /// In the equatorial band.
     pub equator: usize,
@@ -62,7 +63,7 @@ pub struct MaskedDoc {
 }
 
 /// Box means of one layer.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, ToSchema)]
 pub struct LayerDoc {
     /// Bottom pressure, hPa.
     pub bottom_hpa: f64,
@@ -107,13 +108,14 @@ pub struct LayerDoc {
 }
 
 /// The profile document of a box at one time.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, ToSchema)]
 pub struct ProfileDoc {
     /// Dataset name (the file name for the command line).
     pub dataset: String,
     /// Valid time, ISO 8601.
     pub time: String,
     /// The box, `[west, south, east, north]`.
+    #[schema(value_type = Vec<f64>)]
     pub bbox: [f64; 4],
     /// The caution text.
     pub caution: String,
@@ -195,7 +197,7 @@ fn layer_doc(l: &LayerMeans) -> LayerDoc {
 }
 
 /// The horizontal grid as the dataset document describes it.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, ToSchema)]
 pub struct GridDoc {
     /// Number of latitudes.
     pub n_lat: usize,
@@ -220,7 +222,7 @@ pub struct GridDoc {
 }
 
 /// One recognised variable.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, ToSchema)]
 pub struct VariableDoc {
     /// Role key (`temperature`, `geopotential`, …).
     pub role: String,
@@ -235,7 +237,7 @@ pub struct VariableDoc {
 }
 
 /// Whether a diagnostic can be computed from the dataset, and why not.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, ToSchema)]
 pub struct DiagnosticDoc {
     /// Diagnostic name.
     pub name: String,
@@ -246,7 +248,7 @@ pub struct DiagnosticDoc {
 }
 
 /// The time axis.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, ToSchema)]
 pub struct TimesDoc {
     /// Number of time steps.
     pub count: usize,
@@ -261,7 +263,7 @@ pub struct TimesDoc {
 }
 
 /// The dataset document: what was recognised and what can be computed.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, ToSchema)]
 pub struct DatasetDoc {
     /// Dataset name (the file name for the command line).
     pub name: String,
@@ -279,6 +281,8 @@ pub struct DatasetDoc {
     pub variables: Vec<VariableDoc>,
     /// Diagnostics and whether each is possible.
     pub diagnostics: Vec<DiagnosticDoc>,
+    /// The caution text.
+    pub caution: String,
 }
 
 impl DatasetDoc {
@@ -322,6 +326,7 @@ impl DatasetDoc {
             },
             variables: ds.recognised().iter().map(variable_doc).collect(),
             diagnostics: ds.diagnostics().iter().map(diagnostic_doc).collect(),
+            caution: crate::CAUTION.to_string(),
         }
     }
 }
@@ -338,4 +343,111 @@ fn variable_doc(r: &Recognised) -> VariableDoc {
 
 fn diagnostic_doc(c: &Capability) -> DiagnosticDoc {
     DiagnosticDoc { name: c.name.to_string(), possible: c.possible, reason: c.reason.clone() }
+}
+
+/// The gridded thickness and thermal wind of one layer over a box, decimated by `stride`.
+///
+/// Rows run south to north and columns west to east (through the antimeridian for a box that
+/// crosses it); `values[row][col]` belongs to `lat[row]`, `lon[col]`. A masked or undefined
+/// cell is `null`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, ToSchema)]
+pub struct GridValuesDoc {
+    /// Every `stride`-th row and column of the box is given, starting at its south-west cell.
+    pub stride: usize,
+    /// Latitudes of the rows, degrees north.
+    pub lat: Vec<f64>,
+    /// Longitudes of the columns, degrees east, as stored in the file.
+    pub lon: Vec<f64>,
+    /// Layer thickness (the primary method), gpm, by row.
+    pub thickness_m: Vec<Vec<Option<f32>>>,
+    /// Eastward thermal wind, m s⁻¹, by row.
+    pub thermal_wind_u_ms: Vec<Vec<Option<f32>>>,
+    /// Northward thermal wind, m s⁻¹, by row.
+    pub thermal_wind_v_ms: Vec<Vec<Option<f32>>>,
+}
+
+/// The answer of the service's layer query: the profile document with the one deep layer and,
+/// when asked for, the layer's values on the grid.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, ToSchema)]
+pub struct LayerResponseDoc {
+    /// The profile document (one layer).
+    #[serde(flatten)]
+    pub profile: ProfileDoc,
+    /// The gridded layer values (`grid=true` only).
+    #[serde(skip_serializing_if = "Option::is_none", default)]
+    pub grid: Option<GridValuesDoc>,
+}
+
+/// One dataset in the service's list.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, ToSchema)]
+pub struct DatasetSummaryDoc {
+    /// The dataset's name, as used in URLs.
+    pub name: String,
+    /// Whether the dataset is loaded and answers queries.
+    pub available: bool,
+    /// Where its document is, relative to the service root.
+    pub href: String,
+    /// Pressure levels, hPa, bottom-up (empty when unavailable).
+    pub levels_hpa: Vec<f64>,
+    /// The time axis (absent when unavailable).
+    pub times: Option<TimesDoc>,
+}
+
+/// The list of datasets the service offers.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, ToSchema)]
+pub struct DatasetListDoc {
+    /// The datasets, by name.
+    pub datasets: Vec<DatasetSummaryDoc>,
+    /// The caution text.
+    pub caution: String,
+}
+
+/// The load state of one dataset.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, ToSchema)]
+pub struct DatasetStatusDoc {
+    /// The dataset's name.
+    pub name: String,
+    /// Whether a file of it is loaded and answers queries.
+    pub serving: bool,
+    /// The file name (no folder) being served.
+    pub file: Option<String>,
+    /// When that file was loaded, ISO 8601 UTC.
+    pub loaded_at: Option<String>,
+    /// The last load or reload that failed, and why; cleared by the next good load.
+    pub error: Option<String>,
+}
+
+/// The readiness document: every configured dataset and its state.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, ToSchema)]
+pub struct ReadyDoc {
+    /// True when every dataset is serving.
+    pub ready: bool,
+    /// Each dataset's state.
+    pub datasets: Vec<DatasetStatusDoc>,
+}
+
+/// The liveness document.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, ToSchema)]
+pub struct HealthDoc {
+    /// Always `"ok"`.
+    pub status: String,
+}
+
+/// What went wrong with a request.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, ToSchema)]
+pub struct ErrorBody {
+    /// A stable, machine-readable code, such as `invalid_bbox` or `time_not_found`.
+    pub code: String,
+    /// What was wrong and what to do instead.
+    pub message: String,
+    /// For `too_many_cells`: the smallest stride whose grid fits the cell limit.
+    #[serde(skip_serializing_if = "Option::is_none", default)]
+    pub stride: Option<usize>,
+}
+
+/// The body of every error response.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, ToSchema)]
+pub struct ErrorDoc {
+    /// The error.
+    pub error: ErrorBody,
 }

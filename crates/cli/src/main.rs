@@ -78,6 +78,20 @@ enum Command {
     Compute(compute::ComputeArgs),
     /// Join the parts of a sharded `compute` run along time into one file.
     Join(join::JoinArgs),
+    /// Serve box queries over HTTP as JSON (the demo dataset when no data is given).
+    Serve {
+        /// A TOML configuration file: datasets, bind address, cache size, limits, CORS origins
+        /// and bearer tokens.
+        #[arg(long, value_name = "FILE")]
+        config: Option<std::path::PathBuf>,
+        /// A dataset NAME=PATH_OR_GLOB (repeatable); a glob serves its last match in name
+        /// order and moves to newer files as they appear.
+        #[arg(long = "data", value_name = "NAME=PATH_OR_GLOB")]
+        data: Vec<String>,
+        /// The address to listen on [default: 127.0.0.1:8080].
+        #[arg(long, value_name = "ADDR")]
+        bind: Option<String>,
+    },
 }
 
 /// The run stopped on SIGINT, SIGTERM or SIGHUP (exit status 130).
@@ -124,6 +138,13 @@ fn run(cli: Cli) -> Result<()> {
     match cli.command {
         Command::Compute(args) => compute::run(args)?,
         Command::Join(args) => join::run(args)?,
+        Command::Serve { config, data, bind } => {
+            shearbox_server::app::serve_blocking(&shearbox_server::app::ServeOptions {
+                config,
+                data,
+                bind,
+            })?
+        }
         Command::Inspect { file, json, vars } => {
             let ds = Dataset::open(&file, &overrides(&vars)?)?;
             let doc = DatasetDoc::new(&file_name(&file), &ds);
