@@ -373,7 +373,12 @@ async fn box_query(
             let body = state
                 .gate
                 .run(timeout, move || answer(&worker, &loaded, &request, &plan, grid))
-                .await??;
+                .await
+                .inspect_err(|e| {
+                    if *e == ApiError::Overloaded {
+                        Metrics::add(&state.metrics.rejected, 1);
+                    }
+                })??;
             state.cache.insert(key, Cached::Answer(body.clone()));
             body
         }

@@ -282,6 +282,7 @@ async fn past_the_queue_a_request_gets_503_with_retry_after() {
     assert_eq!(a.status, StatusCode::SERVICE_UNAVAILABLE);
     assert_eq!(a.json()["error"]["code"], "overloaded");
     assert_eq!(a.headers[header::RETRY_AFTER], "1");
+    assert_eq!(state.metrics.rejected.load(std::sync::atomic::Ordering::Relaxed), 1);
     drop(held);
     let b = get(&router, "/v1/datasets/tidy/profile?bbox=0,40,10,50").await;
     assert_eq!(b.status, StatusCode::OK);
