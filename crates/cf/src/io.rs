@@ -86,3 +86,25 @@ where
 pub(crate) fn drop_there<T: Send + 'static>(value: T) {
     let _ = run(move || drop(value));
 }
+
+/// Sets the chunk cache that the netCDF library gives each variable of every file opened or
+/// created after the call (process-wide). A streaming run that reads and writes each time
+/// step whole gains nothing from a cache but the memory it holds (by default up to 16 MB per
+/// variable and open file), so the batch pipeline turns it off with `bytes = 0`; chunks are
+/// then decompressed on every read, which only costs time for inputs whose chunks span
+/// several time steps.
+pub fn set_chunk_cache(bytes: usize) -> Result<(), String> {
+    let status = run(move || {
+        let _lock = netcdf_sys::libnetcdf_lock.lock();
+        chunk_cache_call(bytes)
+    })?;
+    if status == 0 { Ok(()) } else { Err(format!("nc_set_chunk_cache returned {status}")) }
+}
+
+#[allow(unsafe_code)]
+fn chunk_cache_call(bytes: usize) -> i32 {
+    // SAFETY: nc_set_chunk_cache stores three numbers in the library's defaults and touches no
+    // memory of ours; it runs on the netCDF thread under the library's global lock, like
+    // every other call.
+    unsafe { netcdf_sys::nc_set_chunk_cache(bytes, 1009, 0.75) }
+}

@@ -56,6 +56,7 @@ pub use calendar::Calendar;
 pub use dataset::Dataset;
 pub use error::CfError;
 pub use role::{Recognised, Role, VarOverrides};
+pub use io::set_chunk_cache;
 pub use units::G0;
 
 /// The `netcdf` crate, re-exported for the workspace's fixture generator, which writes files

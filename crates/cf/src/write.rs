@@ -539,7 +539,11 @@ impl PartFile {
             let var = file
                 .variable(&name_owned)
                 .ok_or_else(|| netcdf::Error::NotFound(name_owned.clone()))?;
-            var.get_values::<f32, _>((step, ..))
+            let mut extents: Vec<std::ops::Range<usize>> =
+                Vec::with_capacity(var.dimensions().len());
+            extents.push(step..step + 1);
+            extents.extend(var.dimensions()[1..].iter().map(|d| 0..d.len()));
+            var.get_values::<f32, _>(extents.as_slice())
         })
         .map_err(io_err(&path, "reading a time step"))?
         .map_err(lib_err(&path, format!("reading step {step} of {name}")))?;

@@ -2,7 +2,6 @@
 //! other, their time steps put in order, and the run's steps chosen (time range, shard).
 
 use std::path::{Path, PathBuf};
-use std::sync::Arc;
 
 use anyhow::{Context, Result, bail};
 use shearbox_cf::calendar::{self, Calendar};
@@ -23,16 +22,37 @@ pub struct Step {
     pub iso: String,
 }
 
-/// The opened inputs, their common layout, and every time step in time order.
+/// The checked inputs and every time step in time order.
+///
+/// Only the first file stays open (its grid and layout describe them all); the pipeline
+/// opens one file at a time while it reads, so a run over thousands of files holds neither
+/// thousands of descriptors nor the library's buffers of each.
 pub struct Inputs {
-    /// Opened files, in the order given (globs expanded and sorted).
-    pub files: Vec<Arc<Dataset>>,
+    /// The first usable file, open.
+    pub first: Dataset,
+    /// Usable files, in the order given (globs expanded and sorted).
+    pub paths: Vec<PathBuf>,
     /// Files that could not be used, with the reason (only with `--skip-bad`).
     pub skipped: Vec<(PathBuf, String)>,
     /// The common calendar.
     pub calendar: Calendar,
     /// Every time step of every file, sorted by time.
     pub steps: Vec<Step>,
+}
+
+impl Inputs {
+    /// The usable files in the order of their first time step (the order given does not
+    /// matter to the output).
+    pub fn files_in_time_order(&self) -> Vec<&Path> {
+        let mut seen = vec![false; self.paths.len()];
+        let mut out = Vec::new();
+        for s in &self.steps {
+            if !std::mem::replace(&mut seen[s.file], true) {
+                out.push(self.paths[s.file].as_path());
+            }
+        }
+        out
+    }
 }
 
 /// Whether `text` holds a glob pattern character.
@@ -123,7 +143,9 @@ pub fn open(
     layers_of: &dyn Fn(&Dataset) -> Result<Vec<Layer>>,
     skip_bad: bool,
 ) -> Result<(Inputs, Vec<Layer>)> {
-    let mut files: Vec<Arc<Dataset>> = Vec::new();
+    let mut first: Option<Dataset> = None;
+    let mut usable: Vec<PathBuf> = Vec::new();
+    let mut times: Vec<(Vec<i128>, Vec<String>)> = Vec::new();
     let mut skipped = Vec::new();
     let mut layers: Option<Vec<Layer>> = None;
     for path in paths {
@@ -136,7 +158,7 @@ pub fn open(
                 );
             }
             let l = layers_of(&ds)?;
-            if let Some(first) = files.first() {
+            if let Some(first) = &first {
                 if let Some(why) = mismatch(first, &ds, &l) {
                     bail!("{}: cannot be combined with the other inputs: {why}", path.display());
                 }
@@ -146,7 +168,11 @@ pub fn open(
         match checked {
             Ok((ds, l)) => {
                 layers.get_or_insert(l);
-                files.push(Arc::new(ds));
+                usable.push(path.clone());
+                times.push((ds.time_instants().to_vec(), ds.times().to_vec()));
+                if first.is_none() {
+                    first = Some(ds);
+                }
             }
             Err(e) if skip_bad => skipped.push((path.clone(), format!("{e:#}"))),
             Err(e) => {
@@ -157,31 +183,31 @@ pub fn open(
             }
         }
     }
-    let Some(layers) = layers else {
+    let (Some(layers), Some(first)) = (layers, first) else {
         bail!("none of the {} input file(s) could be used", paths.len());
     };
-    let calendar = files[0].calendar();
+    let calendar = first.calendar();
     let mut steps: Vec<Step> = Vec::new();
-    for (f, ds) in files.iter().enumerate() {
-        for (index, (instant, iso)) in ds.time_instants().iter().zip(ds.times()).enumerate() {
+    for (f, (instants, isos)) in times.iter().enumerate() {
+        for (index, (instant, iso)) in instants.iter().zip(isos).enumerate() {
             steps.push(Step { file: f, index, instant: *instant, iso: iso.clone() });
         }
     }
     steps.sort_by_key(|s| s.instant);
     for pair in steps.windows(2) {
         if pair[0].instant == pair[1].instant {
-            let (a, b) = (&files[pair[0].file], &files[pair[1].file]);
+            let (a, b) = (&usable[pair[0].file], &usable[pair[1].file]);
             bail!(
                 "time {} appears twice: in {} (step {}) and in {} (step {}); give each time once",
                 pair[0].iso,
-                a.path().display(),
+                a.display(),
                 pair[0].index,
-                b.path().display(),
+                b.display(),
                 pair[1].index
             );
         }
     }
-    Ok((Inputs { files, skipped, calendar, steps }, layers))
+    Ok((Inputs { first, paths: usable, skipped, calendar, steps }, layers))
 }
 
 /// A `--shard K/N` choice: the K-th (1-based) of N contiguous parts.

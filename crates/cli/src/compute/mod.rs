@@ -14,7 +14,6 @@ mod progress;
 pub mod regions;
 
 use std::path::{Path, PathBuf};
-use std::sync::Arc;
 use std::sync::mpsc::sync_channel;
 use std::time::Instant;
 
@@ -212,7 +211,7 @@ pub fn run(args: ComputeArgs) -> Result<()> {
         args.skip_bad,
     )?;
     let plan = inputs::select(&inputs, args.from.as_deref(), args.to.as_deref(), shard)?;
-    let first = Arc::clone(&inputs.files[0]);
+    let first = &inputs.first;
     regions::check(&regions, first.grid())?;
 
     let mut targets = vec![args.output.clone()];
@@ -223,7 +222,7 @@ pub fn run(args: ComputeArgs) -> Result<()> {
     staging::install_interrupt_handler()?;
 
     let cfg = Config { equator_band_deg: args.equator_band, ..Config::default() };
-    let layout = DiagnosticsLayout::new(&first, &layers);
+    let layout = DiagnosticsLayout::new(first, &layers);
     let prov = Provenance {
         history: format!(
             "{}: {} (shearbox {})",
@@ -234,12 +233,21 @@ pub fn run(args: ComputeArgs) -> Result<()> {
         source: format!(
             "shearbox {} diagnostics from {}",
             env!("CARGO_PKG_VERSION"),
-            inputs.files.iter().map(|d| file_name(d.path())).collect::<Vec<_>>().join(", ")
+            inputs
+                .files_in_time_order()
+                .iter()
+                .map(|p| file_name(p))
+                .collect::<Vec<_>>()
+                .join(", ")
         ),
         comment: shearbox_server::CAUTION.to_string(),
         config: cfg,
         deflate: (args.deflate > 0).then_some(args.deflate),
     };
+    // Every step is read and written whole: the library's chunk caches would only hold
+    // memory (see shearbox_cf::set_chunk_cache).
+    shearbox_cf::set_chunk_cache(0)
+        .map_err(|e| anyhow::anyhow!("setting up the netCDF library: {e}"))?;
     let output = OutputFile::create(staged.temp(0), layout.header(&prov))?;
     let sides = if regions.is_empty() {
         None
@@ -260,14 +268,15 @@ pub fn run(args: ComputeArgs) -> Result<()> {
         None => progress.say(&format!(
             "{} time steps from {} file(s), {} layers on {} × {} cells",
             plan.len(),
-            inputs.files.len(),
+            inputs.paths.len(),
             layers.len(),
             first.grid().n_lat(),
             first.grid().n_lon()
         )),
     }
+    let source = Source { paths: &inputs.paths, overrides: &overrides };
     let totals = pipeline(
-        &inputs.files,
+        &source,
         &plan,
         &layers,
         &cfg,
@@ -323,9 +332,33 @@ pub fn run(args: ComputeArgs) -> Result<()> {
     Ok(())
 }
 
+/// Where the pipeline reads: the input files, opened one at a time.
+struct Source<'a> {
+    paths: &'a [PathBuf],
+    overrides: &'a VarOverrides,
+}
+
+impl Source<'_> {
+    /// Reads `step`, reusing `open` when it is the step's file, else opening that file.
+    fn read(&self, step: &Step, open: &mut Option<(usize, Dataset)>) -> Result<Fields, CfError> {
+        if open.as_ref().is_none_or(|(f, _)| *f != step.file) {
+            *open = None;
+            *open = Some((step.file, Dataset::open(&self.paths[step.file], self.overrides)?));
+        }
+        let Some((_, ds)) = open.as_ref() else { unreachable!("opened above") };
+        if ds.time_instants().get(step.index) != Some(&step.instant) {
+            return Err(CfError::Damaged {
+                file: ds.path().to_path_buf(),
+                reason: format!("the file changed during the run (time step {} moved)", step.iso),
+            });
+        }
+        ds.read_fields(step.index, None)
+    }
+}
+
 #[allow(clippy::too_many_arguments)]
 fn pipeline(
-    files: &[Arc<Dataset>],
+    source: &Source<'_>,
     plan: &[Step],
     layers: &[Layer],
     cfg: &Config,
@@ -341,11 +374,12 @@ fn pipeline(
     let mut totals = Totals::default();
     std::thread::scope(|scope| -> Result<()> {
         scope.spawn(move || {
+            let mut open = None;
             for step in plan {
                 if staging::interrupted() {
                     break;
                 }
-                let read = files[step.file].read_fields(step.index, None);
+                let read = source.read(step, &mut open);
                 if in_tx.send((step.clone(), read)).is_err() {
                     break;
                 }
@@ -392,7 +426,7 @@ fn pipeline(
                         totals.counts.add(MaskReason::from_u8(code));
                     }
                 }
-                let name = file_name(files[step.file].path());
+                let name = file_name(&source.paths[step.file]);
                 let mut profiles = Vec::with_capacity(regions.len());
                 for r in regions {
                     let p = box_profile(&fields, &diag, &r.bbox)
