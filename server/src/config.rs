@@ -350,3 +350,83 @@ impl ServeConfig {
         Ok(())
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn every_key_is_read_and_relative_paths_follow_the_file() {
+        let text = r#"
+            bind = "0.0.0.0:9000"
+            cache_mb = 64
+            reload_interval_secs = 2.5
+            cache_max_age_secs = 5
+            equator_band_deg = 3
+            cors_origins = ["https://dash.example.org"]
+            tokens = ["0123456789abcdef"]
+            [limits]
+            max_concurrent = 3
+            max_queue = 7
+            max_grid_cells = 1000
+            request_timeout_secs = 12
+            [datasets]
+            a = "data/a.nc"
+            b = "/abs/run_*.nc"
+            c = { path = "c.nc", vars = { temperature = "air_temp" } }
+        "#;
+        let cfg = ServeConfig::from_toml(text, Path::new("/etc/shearbox")).unwrap();
+        assert_eq!(cfg.bind, "0.0.0.0:9000".parse().unwrap());
+        assert_eq!(cfg.cache_mb, 64);
+        assert_eq!(cfg.reload_interval, Duration::from_millis(2500));
+        assert_eq!((cfg.cache_max_age_secs, cfg.equator_band_deg), (5, 3.0));
+        assert_eq!(cfg.cors_origins, ["https://dash.example.org"]);
+        assert_eq!(
+            cfg.limits,
+            Limits {
+                max_concurrent: 3,
+                max_queue: 7,
+                max_grid_cells: 1000,
+                request_timeout_secs: 12.0
+            }
+        );
+        assert_eq!(cfg.datasets["a"].path, Path::new("/etc/shearbox/data/a.nc"));
+        assert_eq!(cfg.datasets["b"].path, Path::new("/abs/run_*.nc"));
+        assert!(cfg.datasets["b"].is_glob() && !cfg.datasets["a"].is_glob());
+        assert_eq!(cfg.datasets["c"].vars["temperature"], "air_temp");
+    }
+
+    #[test]
+    fn bad_configurations_are_refused_with_the_key() {
+        let cases = [
+            ("cache_size = 3", "unknown field `cache_size`"),
+            ("[limits]\nmax_queu = 3", "unknown field `max_queu`"),
+            ("bind = \"localhost\"", "HOST:PORT"),
+            ("[limits]\nmax_concurrent = 0", "limits.max_concurrent"),
+            ("[limits]\nmax_grid_cells = 0", "limits.max_grid_cells"),
+            ("[limits]\nrequest_timeout_secs = -1", "limits.request_timeout_secs"),
+            ("reload_interval_secs = 0", "reload_interval_secs"),
+            ("equator_band_deg = 90", "equator_band_deg"),
+            ("tokens = [\"short\"]", "too short"),
+            ("cors_origins = [\"dash.example.org\"]", "not an origin"),
+            ("[datasets]\n\"../x\" = \"x.nc\"", "datasets.../x"),
+            ("[datasets]\nx = { path = \"x.nc\", vars = { colour = \"c\" } }", "datasets.x"),
+        ];
+        for (text, words) in cases {
+            let err = ServeConfig::from_toml(text, Path::new("")).unwrap_err().to_string();
+            assert!(err.contains(words), "{text:?}: {err}");
+        }
+    }
+
+    #[test]
+    fn data_arguments() {
+        let mut cfg = ServeConfig::default();
+        cfg.add_data_arg("demo=fixtures/x.nc").unwrap();
+        assert_eq!(cfg.datasets["demo"].path, Path::new("fixtures/x.nc"));
+        for bad in ["demo", "demo=", "=x.nc", "a b=x.nc", "demo=y.nc"] {
+            assert!(cfg.add_data_arg(bad).is_err(), "{bad}");
+        }
+        assert_eq!(cfg.datasets.len(), 1);
+        assert!(cfg.clone().or_demo().is_ok(), "datasets given: the demo is not looked for");
+    }
+}

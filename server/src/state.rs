@@ -155,3 +155,28 @@ impl WorkGate {
         tokio::time::timeout(timeout, task).await.map_err(|_| ApiError::Timeout)?
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[tokio::test]
+    async fn a_timed_out_query_keeps_its_place_until_its_work_ends() {
+        let gate = WorkGate::new(1, 0);
+        let (release, wait) = std::sync::mpsc::channel::<()>();
+        let result = gate.run(Duration::from_millis(20), move || wait.recv().is_ok()).await;
+        assert_eq!(result, Err(ApiError::Timeout));
+        // The work still runs on its blocking thread and holds the only place.
+        assert_eq!(gate.in_flight(), 1);
+        assert_eq!(gate.run(Duration::from_secs(5), || ()).await, Err(ApiError::Overloaded));
+        release.send(()).unwrap();
+        for _ in 0..500 {
+            if gate.in_flight() == 0 {
+                break;
+            }
+            tokio::time::sleep(Duration::from_millis(10)).await;
+        }
+        assert_eq!(gate.in_flight(), 0);
+        assert_eq!(gate.run(Duration::from_secs(5), || 7).await, Ok(7));
+    }
+}
