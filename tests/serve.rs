@@ -24,6 +24,7 @@ struct Served {
     child: Child,
     base: String,
     log: Arc<Mutex<Vec<String>>>,
+    reader: Option<std::thread::JoinHandle<()>>,
 }
 
 impl Served {
@@ -43,7 +44,7 @@ impl Served {
         let (tx, rx) = mpsc::channel();
         let lines = Arc::clone(&log);
         // Keep reading standard error, so that the log never fills the pipe.
-        std::thread::spawn(move || {
+        let reader = std::thread::spawn(move || {
             for line in BufReader::new(stderr).lines().map_while(Result::ok) {
                 let addr = line.split("listening on http://").nth(1);
                 if let Some(addr) = addr.and_then(|a| a.split_whitespace().next()) {
@@ -56,7 +57,7 @@ impl Served {
             let _ = child.kill();
             panic!("no address logged: {:?}", log.lock().unwrap())
         });
-        Served { child, base: format!("http://{addr}"), log }
+        Served { child, base: format!("http://{addr}"), log, reader: Some(reader) }
     }
 
     fn get(&self, path: &str) -> (u16, Value) {
@@ -77,8 +78,10 @@ impl Served {
         let sent = Command::new("kill").args([signal, &pid]).status().expect("kill runs");
         assert!(sent.success());
         let status = self.child.wait().expect("the process ends");
-        // The reader thread ends with the pipe; give it the last lines.
-        std::thread::sleep(Duration::from_millis(100));
+        // The reader thread ends when the pipe closes, after the last line.
+        if let Some(reader) = self.reader.take() {
+            reader.join().expect("the reader thread ends");
+        }
         let log = self.log.lock().unwrap().clone();
         (status.success(), log)
     }
@@ -184,4 +187,34 @@ fn without_data_it_serves_the_demo_file() {
     assert_eq!(ready["datasets"][0]["file"], "kestrel_gap.nc");
     let (clean, log) = served.stop_with("-INT");
     assert!(clean, "{log:?}");
+}
+
+#[test]
+fn a_configuration_file_is_read_and_a_bad_one_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let config = dir.path().join("serve.toml");
+    let text = format!(
+        "bind = \"127.0.0.1:1\"\n[limits]\nmax_grid_cells = 10\n[datasets]\ntidy = \"{}\"\n",
+        fixture("tidy_nc4.nc").display()
+    );
+    std::fs::write(&config, text).unwrap();
+    // --bind (127.0.0.1:0, added by `start`) overrides the file's address.
+    let served = Served::start(&["--config".into(), config.display().to_string()], dir.path());
+    let (status, list) = served.get("/v1/datasets");
+    assert_eq!(status, 200);
+    assert_eq!(list["datasets"][0]["name"], "tidy");
+    let (status, err) =
+        served.get("/v1/datasets/tidy/layer?bottom=1000&top=500&bbox=-10,40,10,55&grid=true");
+    assert_eq!(status, 413, "{err}");
+    drop(served);
+
+    std::fs::write(&config, "[limits]\nmax_queue = 3\nmax_qeue = 4\n").unwrap();
+    let out = Command::new(env!("CARGO_BIN_EXE_shearbox"))
+        .args(["serve", "--config"])
+        .arg(&config)
+        .output()
+        .expect("the binary runs");
+    assert!(!out.status.success());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("serve.toml") && err.contains("max_qeue"), "{err}");
 }

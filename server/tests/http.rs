@@ -296,3 +296,48 @@ fn replaced_and_new_files_are_reloaded_and_a_broken_one_keeps_the_old() {
     assert!(metric(&metrics, "shearbox_reloads_total", "") >= 2.0);
     assert!(metric(&metrics, "shearbox_reload_failures_total", "") >= 1.0);
 }
+
+#[test]
+fn under_load_every_answer_is_a_result_or_a_503_and_the_service_stays_up() {
+    let server = Server::start(config("cache_mb = 0\n[limits]\nmax_concurrent = 1\nmax_queue = 2"));
+    let base = server.base.clone();
+    // 16 threads x 4 requests, each a different box, so that none is answered from the cache.
+    let threads: Vec<_> = (0..16)
+        .map(|t| {
+            let base = base.clone();
+            std::thread::spawn(move || {
+                let agent = client();
+                (0..4)
+                    .map(|k| {
+                        let west = -40 + t + 16 * (k % 2);
+                        let url = format!(
+                            "{base}/v1/datasets/tidy/profile?bbox={west},30,{},60&time=2026-01-14T0{}:00Z",
+                            west + 10,
+                            6 * (k / 2)
+                        );
+                        fetch(&agent, &url, &[])
+                    })
+                    .collect::<Vec<_>>()
+            })
+        })
+        .collect();
+    let replies: Vec<Reply> = threads.into_iter().flat_map(|t| t.join().unwrap()).collect();
+    assert_eq!(replies.len(), 64);
+    for r in &replies {
+        match r.status {
+            200 => assert!(r.json()["layers"].is_array()),
+            503 => {
+                assert_eq!(r.json()["error"]["code"], "overloaded");
+                assert_eq!(r.header("retry-after"), Some("1"));
+            }
+            other => panic!("status {other}: {}", String::from_utf8_lossy(&r.body)),
+        }
+    }
+    let agent = client();
+    let after = fetch(&agent, &format!("{base}/v1/datasets/tidy/profile?bbox=0,40,10,50"), &[]);
+    assert_eq!(after.status, 200);
+    let refused = replies.iter().filter(|r| r.status == 503).count() as f64;
+    let metrics = String::from_utf8(fetch(&agent, &format!("{base}/metrics"), &[]).body).unwrap();
+    assert_eq!(metric(&metrics, "shearbox_rejected_total", ""), refused);
+    assert_eq!(metric(&metrics, "shearbox_work_in_flight", ""), 0.0);
+}
