@@ -12,7 +12,8 @@ use std::sync::Arc;
 use std::time::Duration;
 
 use axum::body::{Body, Bytes};
-use axum::extract::{Path, RawQuery, State};
+use axum::extract::{FromRequestParts, Path, RawQuery, State};
+use axum::http::request::Parts;
 use axum::http::{HeaderMap, HeaderValue, StatusCode, header};
 use axum::response::{IntoResponse, Response};
 use serde::Serialize;
@@ -29,6 +30,26 @@ use crate::wire::{
     DatasetDoc, DatasetListDoc, DatasetSummaryDoc, ErrorDoc, HealthDoc, LayerResponseDoc,
     ProfileDoc, ReadyDoc,
 };
+
+/// The `{name}` of a dataset route; a name that is not valid UTF-8 gets a JSON 400 like every
+/// other malformed request.
+pub struct DatasetName(pub String);
+
+impl<S: Send + Sync> FromRequestParts<S> for DatasetName {
+    type Rejection = ApiError;
+
+    async fn from_request_parts(parts: &mut Parts, state: &S) -> Result<Self, ApiError> {
+        Path::<String>::from_request_parts(parts, state)
+            .await
+            .map(|Path(n)| DatasetName(n))
+            .map_err(|e| {
+                ApiError::bad(
+                    "invalid_parameter",
+                    format!("the dataset name in the path is malformed: {}", e.body_text()),
+                )
+            })
+    }
+}
 
 /// The query parameters of a request, checked against the ones its route takes.
 fn params(raw: Option<&str>, allowed: &[&str]) -> Result<BTreeMap<String, String>, ApiError> {
@@ -260,7 +281,7 @@ pub async fn list_datasets(
         (status = 503, description = "The dataset could not be loaded", body = ErrorDoc)))]
 pub async fn get_dataset(
     State(state): State<AppState>,
-    Path(name): Path<String>,
+    DatasetName(name): DatasetName,
     headers: HeaderMap,
     RawQuery(raw): RawQuery,
 ) -> Result<Response, ApiError> {
@@ -284,7 +305,7 @@ pub async fn get_dataset(
         (status = 503, description = "Too many requests waiting (Retry-After), the time limit, or the dataset unavailable", body = ErrorDoc)))]
 pub async fn profile(
     State(state): State<AppState>,
-    Path(name): Path<String>,
+    DatasetName(name): DatasetName,
     headers: HeaderMap,
     RawQuery(raw): RawQuery,
 ) -> Result<Response, ApiError> {
@@ -312,7 +333,7 @@ pub async fn profile(
         (status = 503, description = "Too many requests waiting (Retry-After), the time limit, or the dataset unavailable", body = ErrorDoc)))]
 pub async fn layer(
     State(state): State<AppState>,
-    Path(name): Path<String>,
+    DatasetName(name): DatasetName,
     headers: HeaderMap,
     RawQuery(raw): RawQuery,
 ) -> Result<Response, ApiError> {

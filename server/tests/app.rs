@@ -510,3 +510,93 @@ async fn box_across_the_seam_of_a_global_grid_and_a_temperature_only_file() {
         .json();
     assert_eq!(t["layers"][0]["thickness_method"], "temperature");
 }
+
+/// Odd requests, made by a fixed generator: none may panic the service, reach a 5xx, or answer
+/// anything but JSON.
+#[tokio::test]
+async fn odd_requests_never_reach_a_5xx() {
+    let (_, router) = service("[limits]\nmax_grid_cells = 500");
+    let numbers = [
+        "0",
+        "-0",
+        "1e308",
+        "-1e308",
+        "1e-320",
+        "NaN",
+        "inf",
+        "-inf",
+        "360",
+        "-360",
+        "361",
+        "90",
+        "-90",
+        "90.0000001",
+        "",
+        "+",
+        "%20",
+        "%FF",
+        "0x10",
+        "1,5",
+        "1000",
+        "500",
+        "-500",
+        "18446744073709551616",
+        "99999999999999999999999999",
+        "1.5e3",
+        "+7",
+    ];
+    let times = [
+        "latest",
+        "LATEST",
+        "2026-01-14",
+        "2026-01-14T06",
+        "2026-13-01",
+        "0000-00-00",
+        "%FF",
+        "",
+        "2026-01-14T06:00:00+14:00",
+    ];
+    let mut state: u64 = 0x9e37_79b9_7f4a_7c15;
+    let mut pick = |n: usize| {
+        // A linear congruential generator (Knuth, MMIX constants): the same requests each run.
+        state =
+            state.wrapping_mul(6_364_136_223_846_793_005).wrapping_add(1_442_695_040_888_963_407);
+        (state >> 33) as usize % n
+    };
+    for k in 0..400 {
+        let n = |pick: &mut dyn FnMut(usize) -> usize| numbers[pick(numbers.len())];
+        let bbox = format!("{},{},{},{}", n(&mut pick), n(&mut pick), n(&mut pick), n(&mut pick));
+        let time = times[pick(times.len())];
+        let uri = match k % 4 {
+            0 => format!("/v1/datasets/tidy/profile?bbox={bbox}&time={time}"),
+            1 => format!(
+                "/v1/datasets/global/layer?bottom={}&top={}&bbox={bbox}&grid={}&stride={}",
+                n(&mut pick),
+                n(&mut pick),
+                ["true", "false", "1", "yes"][pick(4)],
+                n(&mut pick)
+            ),
+            2 => format!(
+                "/v1/datasets/tidy/layer?bottom=1000&top=500&bbox={}&grid=true&stride={}",
+                ["-40,20,30,70", "-180,-90,180,90", "0,45,0,45", "30,70,-40,20"][pick(4)],
+                ["1", "2", "3", "0", "100000"][pick(5)]
+            ),
+            _ => format!(
+                "/v1/datasets/{}{}",
+                ["tidy", "%FF", "..", "%2e%2e", "tidy%00", "a%2Fb"][pick(6)],
+                ["", "/profile", "/layer", "/x", "?bbox=1,2,3,4"][pick(5)]
+            ),
+        };
+        let a = get(&router, &uri).await;
+        assert!(
+            a.status.as_u16() < 500,
+            "{uri}: {} {}",
+            a.status,
+            String::from_utf8_lossy(&a.body)
+        );
+        if a.status != StatusCode::OK {
+            let body = a.json();
+            assert!(body["error"]["code"].is_string(), "{uri}: {body}");
+        }
+    }
+}

@@ -102,5 +102,11 @@ pub fn bad_requests() -> Vec<BadRequest> {
         (format!("{p}?bbox=0,40,10,50&bbox=0,40,10,50"), 400, "duplicate_parameter", &["bbox"]),
         ("/v1/datasets?limit=3".into(), 400, "unknown_parameter", &["\"limit\""]),
         ("/v2/anything".into(), 404, "not_found", &["/openapi.json"]),
+        (
+            "/v1/datasets/%FF/profile?bbox=0,40,10,50".into(),
+            400,
+            "invalid_parameter",
+            &["malformed"],
+        ),
     ]
 }
