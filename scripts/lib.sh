@@ -42,3 +42,11 @@ ensure_python() {
         apt_install python3 python3-venv python3-pip
     fi
 }
+
+# The UDUNITS-2 library, which the CF compliance checker (cfchecker from PyPI) loads.
+ensure_udunits() {
+    if ! ldconfig -p 2>/dev/null | grep -q 'libudunits2\.so '; then
+        echo "shearbox: installing libudunits2-dev (for the CF compliance checker)" >&2
+        apt_install libudunits2-dev
+    fi
+}

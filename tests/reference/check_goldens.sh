@@ -12,30 +12,7 @@ set -euo pipefail
 here="$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)"
 root="$(cd "$here/../.." && pwd)"
 golden="$root/tests/golden"
-venv="$here/.venv"
-py="$venv/bin/python"
-
-if [ ! -x "$py" ]; then
-    "${PYTHON:-python3}" -m venv "$venv"
-fi
-if ! "$py" - "$here/requirements.txt" <<'PY'
-import sys
-from importlib.metadata import PackageNotFoundError, version
-
-for line in open(sys.argv[1], encoding="utf-8"):
-    line = line.split("#", 1)[0].strip()
-    if not line:
-        continue
-    name, pinned = line.split("==")
-    try:
-        if version(name) != pinned:
-            sys.exit(1)
-    except PackageNotFoundError:
-        sys.exit(1)
-PY
-then
-    "$venv/bin/pip" install --quiet --disable-pip-version-check -r "$here/requirements.txt"
-fi
+. "$here/venv.sh"
 
 # The reference's own checks against analytic cases come first: goldens from a broken
 # reference would be worthless.

@@ -5,7 +5,9 @@
 //! Choices, all following the CF Conventions (1.8):
 //! - dimensions `time` (unlimited), `layer`, `level`, `nv` (bounds) and the input's latitude
 //!   and longitude, named `lat` and `lon`, with the input's values in the input's latitude
-//!   order (north to south stays north to south);
+//!   order (north to south stays north to south); longitudes in the reader's eastward order,
+//!   made strictly increasing where the input wraps at the antimeridian (CF coordinates are
+//!   monotonic), so 180, −177.5 is written 180, 182.5;
 //! - `time` in `seconds since 1970-01-01 00:00:00` of the input's calendar, one fixed epoch so
 //!   that files of different runs (job-array shards) join along time without conversion;
 //! - `layer` is a vertical coordinate in hPa at each layer's logarithmic midpoint
@@ -165,6 +167,21 @@ fn kind_text(kind: MeanTemperatureKind) -> &'static str {
     }
 }
 
+/// The grid's longitudes made strictly increasing (CF coordinate variables must be
+/// monotonic): each value is the previous one plus the eastward step modulo 360°, so a
+/// regional grid stored as …, 177.5, 180, −177.5, … is written …, 177.5, 180, 182.5, …; a
+/// grid already increasing keeps its values.
+fn increasing_longitudes(lon: &[f64]) -> Vec<f64> {
+    let mut out: Vec<f64> = Vec::with_capacity(lon.len());
+    for (i, &x) in lon.iter().enumerate() {
+        out.push(match i {
+            0 => x,
+            _ => out[i - 1] + (x - lon[i - 1]).rem_euclid(360.0),
+        });
+    }
+    out
+}
+
 impl DiagnosticsLayout {
     /// The layout of `layers` (from `ds.levels()`) computed from `ds`.
     pub fn new(ds: &Dataset, layers: &[Layer]) -> Self {
@@ -187,7 +204,7 @@ impl DiagnosticsLayout {
         };
         Self {
             lat,
-            lon: grid.lon().to_vec(),
+            lon: increasing_longitudes(grid.lon()),
             lat_descending: ds.latitude_descending(),
             levels_hpa: levels.all_hpa(),
             layers_hpa: layers.iter().map(|l| (levels.hpa(l.bottom), levels.hpa(l.top))).collect(),

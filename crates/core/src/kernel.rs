@@ -288,6 +288,11 @@ impl<'a> Context<'a> {
                 }
                 let dzdx = diff(z0, cols[i]) * dx;
                 let dzdy = (f64::from(zp[i]) - f64::from(zm[i])) * dy;
+                // A wind is a vector: where a stencil point of either component is missing,
+                // both are undefined.
+                if dzdx.is_nan() || dzdy.is_nan() {
+                    continue;
+                }
                 u_row[i] = (-gf * dzdy) as f32;
                 v_row[i] = (gf * dzdx) as f32;
             }
@@ -572,8 +577,13 @@ impl<'a> Context<'a> {
                 let dz = f64::from(h0[i]);
                 let ddzdx = diff(h0, cols[i]) * dx;
                 let ddzdy = (f64::from(hp[i]) - f64::from(hm[i])) * dy;
-                let (ut, vt) =
-                    if dz.is_nan() { (f64::NAN, f64::NAN) } else { (-gf * ddzdy, gf * ddzdx) };
+                // Both components or neither: a vector with one missing stencil point is
+                // undefined as a whole.
+                let (ut, vt) = if dz.is_nan() || ddzdx.is_nan() || ddzdy.is_nan() {
+                    (f64::NAN, f64::NAN)
+                } else {
+                    (-gf * ddzdy, gf * ddzdx)
+                };
                 r.ut[i] = ut as f32;
                 r.vt[i] = vt as f32;
                 let speed_t = ut.hypot(vt);

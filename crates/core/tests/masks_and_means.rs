@@ -116,6 +116,27 @@ fn missing_geopotential_is_counted_as_missing() {
 }
 
 #[test]
+fn a_wind_is_undefined_as_a_whole_where_one_component_lacks_a_stencil_point() {
+    // physics.md: the geostrophic wind is masked where Z is missing at any stencil point
+    // used. East and west of a missing height, only v_g's stencil touches it; the vector is
+    // still undefined there as a whole, at the level and for the layers that use it.
+    let grid = common::grid(common::span(30.0, 60.0, 2.0), common::span(0.0, 30.0, 2.0));
+    let levels = common::levels_hpa(&[1000.0, 500.0]);
+    let mut z = common::field3(&grid, &levels, |p, lat, lon| {
+        if p > 7e4 { 100.0 + lon } else { 5600.0 - 3.0 * lat + 0.5 * lon }
+    });
+    z[[1, 5, 5]] = f32::NAN;
+    let fields = FieldsBuilder::new(grid, levels).geopotential_height(z).build().unwrap();
+    let diag = compute(&fields, &fields.levels().adjacent_layers(), &Config::default());
+    let (level, layer) = (&diag.levels[1], &diag.layers[0]);
+    for (j, i) in [(5, 4), (5, 6), (4, 5), (6, 5), (5, 5)] {
+        assert!(level.geostrophic_u[[j, i]].is_nan() && level.geostrophic_v[[j, i]].is_nan());
+        assert!(layer.thermal_wind_u[[j, i]].is_nan() && layer.thermal_wind_v[[j, i]].is_nan());
+    }
+    assert!(level.geostrophic_u[[5, 3]].is_finite() && level.geostrophic_v[[5, 3]].is_finite());
+}
+
+#[test]
 fn layers_below_the_surface_are_masked_only_where_they_are_below() {
     let grid = common::grid(common::span(30.0, 60.0, 2.0), common::span(0.0, 30.0, 2.0));
     let mut ps = Array2::from_elem((grid.n_lat(), grid.n_lon()), 101_300.0f32);
