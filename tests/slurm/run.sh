@@ -90,6 +90,12 @@ for _ in $(seq 300); do
 done
 [ "$(sinfo -h -o %T)" = "idle" ] || { echo "the Slurm node did not come up" >&2; tail -20 "$scratch"/*.log >&2; exit 1; }
 
+# The README shows the example as it is: every line of it but its comments.
+while IFS= read -r line; do
+    case "$line" in "#!"* | "# "* | "#" | "") continue ;; esac
+    grep -Fxq -- "$line" "$root/README.md" || { echo "README.md lacks the example's line: $line" >&2; exit 1; }
+done <"$root/examples/compute-array.sbatch"
+
 # Inputs: 12 six-hourly steps in 3 files.
 cd "$scratch/work"
 "$gen" series data 12 3 1.0 >/dev/null
