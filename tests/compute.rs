@@ -404,6 +404,57 @@ fn shards_joined_equal_one_run() {
 }
 
 #[test]
+fn both_writers_write_the_same_file() {
+    // The direct writer (chunks compressed on all cores, appended through HDF5) against the
+    // netCDF library's own: netCDF-C's ncdump prints the same text for both, every value
+    // equal, and the same storage (chunks, shuffle, deflate).
+    let dir = tempfile::tempdir().unwrap();
+    let pattern = series().join("kestrel_series_*.nc");
+    let mut dumps = Vec::new();
+    for writer in ["direct", "library"] {
+        let out = dir.path().join(format!("{writer}.nc"));
+        ok(&[
+            "compute",
+            s(&pattern),
+            "-o",
+            s(&out),
+            "-q",
+            "--to",
+            "2026-01-15T00Z",
+            "--writer",
+            writer,
+        ]);
+        let text = ncdump(&[], &out);
+        let body: Vec<&str> = text.lines().skip(1).filter(|l| !l.contains(":history = ")).collect();
+        dumps.push(body.join("\n"));
+        let special = ncdump(&["-hs"], &out);
+        assert!(special.contains("thermal_wind_u:_ChunkSizes = 1, 1, 61, 101 ;"), "{writer}");
+        assert!(special.contains("thermal_wind_u:_DeflateLevel = 1 ;"), "{writer}");
+        assert!(special.contains("thermal_wind_u:_Shuffle = \"true\" ;"), "{writer}");
+    }
+    assert!(dumps[0] == dumps[1], "ncdump of the two writers' files differs");
+    assert!(dumps[0].contains("time = 1768348800, 1768370400, 1768392000, 1768413600, 1768435200"));
+    assert_same_data(&dir.path().join("direct.nc"), &dir.path().join("library.nc"));
+    // Uncompressed, too.
+    for writer in ["direct", "library"] {
+        let out = dir.path().join(format!("plain_{writer}.nc"));
+        ok(&[
+            "compute",
+            s(&series_file(0)),
+            "-o",
+            s(&out),
+            "-q",
+            "--deflate",
+            "0",
+            "--writer",
+            writer,
+        ]);
+        assert!(!ncdump(&["-hs"], &out).contains("_DeflateLevel"), "{writer}");
+    }
+    assert_same_data(&dir.path().join("plain_direct.nc"), &dir.path().join("plain_library.nc"));
+}
+
+#[test]
 fn globbed_and_listed_inputs_in_any_order_give_the_same_file() {
     let dir = tempfile::tempdir().unwrap();
     let by_glob = dir.path().join("glob.nc");

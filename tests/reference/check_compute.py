@@ -6,7 +6,9 @@ For each fixture case: runs `shearbox compute`, then
    offline against the CF tables in tests/reference/cf-tables) and requires zero errors;
 2. reads the file back with netCDF4 (which bundles its own netCDF-C and HDF5) and compares
    every gridded diagnostic, cell by cell, with this folder's numpy reference
-   (diagnostics.py: float64 throughout, no code shared with the Rust workspace).
+   (diagnostics.py: float64 throughout, no code shared with the Rust workspace);
+3. reads files of both writers (`--writer direct`, the default, and `--writer library`) and
+   requires every variable to be equal.
 
 Tolerances: the Rust kernel stores inputs and outputs as float32, the reference keeps float64.
 For each layer and variable we allow |rust - numpy| <= rel * max|numpy| + abs, where rel is
@@ -201,6 +203,30 @@ def check_case(shearbox, root, fixture, layers, overrides, tables, py_bin, tmp, 
     return problems
 
 
+def writers_agree(shearbox, root, tmp):
+    """Files of the direct writer and of the netCDF library's, read by netCDF4 (its own
+    netCDF-C and HDF5): every variable equal, masks included."""
+    problems = []
+    paths = {}
+    for writer in ("direct", "library"):
+        paths[writer] = os.path.join(tmp, f"writer_{writer}.nc")
+        subprocess.run(
+            [shearbox, "compute", os.path.join(root, "fixtures/global_noleap.nc"), "-o", paths[writer], "-q", "--writer", writer],
+            check=True,
+        )
+    with netCDF4.Dataset(paths["direct"]) as a, netCDF4.Dataset(paths["library"]) as b:
+        if set(a.variables) != set(b.variables):
+            problems.append("the writers wrote different variables")
+        for v in a.variables:
+            x, y = a[v][:], b[v][:]
+            if not np.array_equal(np.ma.getmaskarray(x), np.ma.getmaskarray(y)) or not np.array_equal(
+                np.ma.filled(x, 0), np.ma.filled(y, 0)
+            ):
+                problems.append(f"variable {v} differs between the direct and the library writer")
+    print(f"  direct and library writers: {len(problems)} differences read by netCDF4")
+    return problems
+
+
 def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--shearbox", required=True)
@@ -213,6 +239,7 @@ def main(argv=None):
     with tempfile.TemporaryDirectory() as tmp:
         for fixture, layers, overrides in CASES:
             problems += check_case(args.shearbox, args.root, fixture, layers, overrides, args.tables, py_bin, tmp, worst)
+        problems += writers_agree(args.shearbox, args.root, tmp)
     for var in sorted(worst):
         if var in ("balance_ratio", "eady_growth_rate"):
             print(f"  largest difference from numpy, as a share of the propagated tolerance: {var} {worst[var]:.2f}")

@@ -41,6 +41,7 @@
 //!   `Dataset` is `Send + Sync`.
 
 pub mod calendar;
+mod chunks;
 mod dataset;
 mod error;
 mod format;
@@ -55,8 +56,8 @@ pub mod write;
 pub use calendar::Calendar;
 pub use dataset::Dataset;
 pub use error::CfError;
-pub use role::{Recognised, Role, VarOverrides};
 pub use io::set_chunk_cache;
+pub use role::{Recognised, Role, VarOverrides};
 pub use units::G0;
 
 /// The `netcdf` crate, re-exported for the workspace's fixture generator, which writes files

@@ -21,6 +21,9 @@ use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
 use crate::error::CfError;
+use rayon::prelude::*;
+
+use crate::chunks;
 use crate::io;
 
 /// The NetCDF default fill value of `float` (`NC_FILL_FLOAT`), used for masked cells.
@@ -283,13 +286,56 @@ fn define(path: &Path, header: &Header) -> Result<netcdf::FileMut, CfError> {
     Ok(file)
 }
 
+/// How the chunks of the gridded variables reach the file.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum Writer {
+    /// Compressed on all cores by the caller and appended as finished chunks through HDF5
+    /// (module `chunks`): the fast path.
+    #[default]
+    Direct,
+    /// Written through the netCDF library, which compresses them on one thread under its
+    /// lock: the reference path.
+    Library,
+}
+
+/// The open file of either writer.
+enum Backend {
+    Library(netcdf::FileMut),
+    Direct(chunks::Direct),
+}
+
+/// Writes one step through the library.
+fn put_step(
+    file: &mut netcdf::FileMut,
+    time_dim: &str,
+    t: usize,
+    time_value: f64,
+    values: &[(String, Vec<f32>)],
+) -> Result<(), netcdf::Error> {
+    let mut tv =
+        file.variable_mut(time_dim).ok_or_else(|| netcdf::Error::NotFound(time_dim.to_string()))?;
+    tv.put_values(&[time_value], t..t + 1)?;
+    for (name, data) in values {
+        let mut var =
+            file.variable_mut(name).ok_or_else(|| netcdf::Error::NotFound(name.clone()))?;
+        let n_dims = var.dimensions().len();
+        let mut extents: Vec<std::ops::Range<usize>> = Vec::with_capacity(n_dims);
+        extents.push(t..t + 1);
+        for d in &var.dimensions()[1..n_dims] {
+            extents.push(0..d.len());
+        }
+        var.put_values(data, extents.as_slice())?;
+    }
+    Ok(())
+}
+
 /// A file being written, one time step at a time. Dropping it without [`Self::close`]
 /// closes the file too; the caller decides what happens to an unfinished file.
 pub struct OutputFile {
     path: PathBuf,
     header: Header,
     /// `Some` until closed; moved to the netCDF thread for every call.
-    file: Option<netcdf::FileMut>,
+    file: Option<Backend>,
     steps: usize,
 }
 
@@ -300,12 +346,56 @@ impl std::fmt::Debug for OutputFile {
 }
 
 impl OutputFile {
-    /// Creates (or truncates) the NetCDF-4 file `path` with everything `header` defines.
+    /// Creates (or truncates) the NetCDF-4 file `path` with everything `header` defines,
+    /// written through the netCDF library ([`Writer::Library`]).
     pub fn create(path: &Path, header: Header) -> Result<Self, CfError> {
+        Self::create_with(path, header, Writer::Library)
+    }
+
+    /// Creates the file with the chosen [`Writer`]. [`Writer::Direct`] needs every
+    /// time-varying variable but the time coordinate to have at least three dimensions.
+    pub fn create_with(path: &Path, header: Header, writer: Writer) -> Result<Self, CfError> {
         header.check(path)?;
         let (p, h) = (path.to_path_buf(), header.clone());
         let file = io::run(move || define(&p, &h)).map_err(io_err(path, "defining the file"))??;
-        Ok(Self { path: path.to_path_buf(), header, file: Some(file), steps: 0 })
+        let backend = match writer {
+            Writer::Library => Backend::Library(file),
+            Writer::Direct => {
+                let vars: Vec<(String, Vec<usize>)> = header
+                    .vars
+                    .iter()
+                    .filter(|v| header.is_time_varying(v) && v.name != header.time_dim)
+                    .map(|v| {
+                        let shape = v.dims[1..].iter().map(|d| header.dim_len(d).unwrap_or(0));
+                        (v.name.clone(), shape.collect())
+                    })
+                    .collect();
+                if let Some((name, _)) = vars.iter().find(|(_, s)| s.len() < 2) {
+                    return Err(CfError::Write {
+                        file: path.to_path_buf(),
+                        what: format!(
+                            "variable {name} has fewer than three dimensions: write it with the \
+                             library writer"
+                        ),
+                        source: None,
+                    });
+                }
+                let (p, time, level) =
+                    (path.to_path_buf(), header.time_dim.clone(), header.deflate);
+                let direct = io::run(move || {
+                    file.close().map_err(|e| format!("closing the defined file: {e}"))?;
+                    chunks::Direct::open(&p, &time, &vars, level)
+                })
+                .map_err(io_err(path, "opening the file for chunk writes"))?
+                .map_err(|what| CfError::Write {
+                    file: path.to_path_buf(),
+                    what,
+                    source: None,
+                })?;
+                Backend::Direct(direct)
+            }
+        };
+        Ok(Self { path: path.to_path_buf(), header, file: Some(backend), steps: 0 })
     }
 
     /// The header the file was created with.
@@ -361,44 +451,79 @@ impl OutputFile {
                 }
             }
         }
-        let mut file = self.file.take().ok_or_else(|| bad("the file is already closed".into()))?;
+        let backend = self.file.take().ok_or_else(|| bad("the file is already closed".into()))?;
         let (path, t) = (self.path.clone(), self.steps);
-        let (result, file) = io::run(move || {
-            let result = (|| {
-                let mut tv = file
-                    .variable_mut(&time_dim)
-                    .ok_or_else(|| netcdf::Error::NotFound(time_dim.clone()))?;
-                tv.put_values(&[time_value], t..t + 1)?;
-                for (name, data) in &values {
-                    let mut var = file
-                        .variable_mut(name)
-                        .ok_or_else(|| netcdf::Error::NotFound(name.clone()))?;
-                    let n_dims = var.dimensions().len();
-                    let mut extents: Vec<std::ops::Range<usize>> = Vec::with_capacity(n_dims);
-                    extents.push(t..t + 1);
-                    for d in &var.dimensions()[1..n_dims] {
-                        extents.push(0..d.len());
-                    }
-                    var.put_values(data, extents.as_slice())?;
+        let (result, backend) = match backend {
+            Backend::Library(file) => {
+                let (result, file) = io::run(move || {
+                    let mut file = file;
+                    let result = put_step(&mut file, &time_dim, t, time_value, &values);
+                    (result, file)
+                })
+                .map_err(io_err(&path, "writing a time step"))?;
+                (
+                    result.map_err(lib_err(&path, format!("writing time step {t}"))),
+                    Backend::Library(file),
+                )
+            }
+            Backend::Direct(mut direct) => {
+                // Shuffle and deflate every chunk on all cores, off the library's lock; the
+                // netCDF thread only appends the bytes.
+                let mut ordered: Vec<Vec<f32>> = Vec::with_capacity(values.len());
+                for i in 0..values.len() {
+                    let name = direct.var_name(i).to_string();
+                    let at = values.iter().position(|(n, _)| *n == name).ok_or_else(|| {
+                        bad(format!("variable {name} is missing from the time step"))
+                    })?;
+                    ordered.push(std::mem::take(&mut values[at].1));
                 }
-                Ok::<(), netcdf::Error>(())
-            })();
-            (result, file)
-        })
-        .map_err(io_err(&path, "writing a time step"))?;
-        self.file = Some(file);
-        result.map_err(lib_err(&self.path, format!("writing time step {t}")))?;
+                let level = direct.level();
+                let jobs: Vec<(usize, usize, usize)> = (0..ordered.len())
+                    .flat_map(|i| {
+                        let (n, len) = direct.chunking(i);
+                        (0..n).map(move |k| (i, k, len))
+                    })
+                    .collect();
+                let encoded: Vec<chunks::Encoded> = jobs
+                    .par_iter()
+                    .map(|&(i, k, len)| chunks::encode(&ordered[i][k * len..(k + 1) * len], level))
+                    .collect();
+                drop(ordered);
+                let mut grouped: Vec<Vec<chunks::Encoded>> = vec![Vec::new(); values.len()];
+                for ((i, _, _), e) in jobs.iter().zip(encoded) {
+                    grouped[*i].push(e);
+                }
+                let (result, direct) = io::run(move || {
+                    let result = direct.write_step(t, time_value, &grouped);
+                    (result, direct)
+                })
+                .map_err(io_err(&path, "writing a time step"))?;
+                let result = result.map_err(|what| CfError::Write {
+                    file: path.clone(),
+                    what,
+                    source: None,
+                });
+                (result, Backend::Direct(direct))
+            }
+        };
+        self.file = Some(backend);
+        result?;
         self.steps += 1;
         Ok(())
     }
 
     /// Flushes and closes the file.
     pub fn close(mut self) -> Result<(), CfError> {
-        let Some(file) = self.file.take() else { return Ok(()) };
+        let Some(backend) = self.file.take() else { return Ok(()) };
         let path = self.path.clone();
-        io::run(move || file.close())
-            .map_err(io_err(&path, "closing the file"))?
-            .map_err(lib_err(&path, "closing the file"))
+        match backend {
+            Backend::Library(file) => io::run(move || file.close())
+                .map_err(io_err(&path, "closing the file"))?
+                .map_err(lib_err(&path, "closing the file")),
+            Backend::Direct(direct) => io::run(move || direct.close())
+                .map_err(io_err(&path, "closing the file"))?
+                .map_err(|what| CfError::Write { file: path.clone(), what, source: None }),
+        }
     }
 }
 

@@ -5,9 +5,16 @@
 //! side by side in one run, best of three each:
 //! - the I/O ceiling: reading the same variables of every step with the same reader
 //!   (`Dataset::read_fields`, the whole grid, one step at a time) and nothing else;
+//! - the I/O ceiling with writing: the same reads, and every step's output written with the same
+//!   writer, shape and compression (`OutputFile`, the layout of `shearbox compute`, the values
+//!   of the first step computed once beforehand, so the data compress as real output does),
+//!   and no computation;
 //! - `shearbox compute` on the file (every adjacent layer), as a whole process, wall time,
 //!   with the output uncompressed and with the default deflate level 1 and shuffle (the
-//!   difference is the compression, which the netCDF library runs on one thread).
+//!   difference is the compression, which the netCDF library runs on one thread);
+//! - when `tests/reference/.venv` exists (made by `scripts/test`), the same job scripted with
+//!   numpy and netCDF4 (`numpy_compute.py`: the project's numpy reference computing every
+//!   layer, writing the same variables with the same chunks and compression), once.
 //!
 //! `cargo bench -p shearbox --bench compute` prints a table and writes
 //! `target/bench/compute.json`.
@@ -16,7 +23,10 @@ use std::path::{Path, PathBuf};
 use std::process::Command;
 use std::time::Instant;
 
+use shearbox_cf::output::{DiagnosticsLayout, Provenance};
+use shearbox_cf::write::OutputFile;
 use shearbox_cf::{Dataset, VarOverrides};
+use shearbox_core::{Config, compute};
 
 fn root() -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR")).join("../..")
@@ -69,10 +79,33 @@ fn main() {
             decoded += (n3 + n2) * 4;
         }
     });
-    drop(ds);
     let out_dir = root().join("target/bench");
     std::fs::create_dir_all(&out_dir).unwrap();
     let out = out_dir.join("compute_out.nc");
+    let layers = ds.levels().adjacent_layers();
+    let layout = DiagnosticsLayout::new(&ds, &layers);
+    let prov = Provenance {
+        history: String::new(),
+        source: String::new(),
+        comment: String::new(),
+        config: Config::default(),
+        deflate: Some(1),
+    };
+    let first = layout.step_values(&compute(
+        &ds.read_fields(0, None).unwrap(),
+        &layers,
+        &Config::default(),
+    ));
+    let read_write = best_of(3, || {
+        let mut file = OutputFile::create(&out, layout.header(&prov)).unwrap();
+        for t in 0..steps {
+            let f = ds.read_fields(t, None).unwrap();
+            drop(f);
+            file.write_step(t as f64, first.clone()).unwrap();
+        }
+        file.close().unwrap();
+    });
+    drop(ds);
     let run = |deflate: &str| {
         best_of(3, || {
             let status = Command::new(env!("CARGO_BIN_EXE_shearbox"))
@@ -89,32 +122,61 @@ fn main() {
     let plain = run("0");
     let compute = run("1");
     let out_mb = std::fs::metadata(&out).unwrap().len() as f64 / 1e6;
+    let py = root().join("tests/reference/.venv/bin/python");
+    let numpy = py.exists().then(|| {
+        let np_out = out_dir.join("numpy_out.nc");
+        let output = Command::new(&py)
+            .arg(root().join("crates/cli/benches/numpy_compute.py"))
+            .arg(&input)
+            .arg(&np_out)
+            .output()
+            .expect("python runs");
+        assert!(output.status.success(), "{}", String::from_utf8_lossy(&output.stderr));
+        let _ = std::fs::remove_file(&np_out);
+        String::from_utf8_lossy(&output.stdout).trim().parse::<f64>().expect("seconds")
+    });
     let decoded_mb = decoded as f64 / 1e6;
     let threads = std::thread::available_parallelism().map_or(1, usize::from);
     println!(
         "compute benchmark: {steps} steps of 121 x 201 cells x 17 levels, {file_mb:.1} MB on disk \
          ({decoded_mb:.1} MB decoded), {threads} threads"
     );
-    println!("| run | wall s | steps/s | file MB/s | decoded MB/s | ÷ read alone |");
-    println!("|---|---|---|---|---|---|");
-    for (name, secs) in [
-        ("read the inputs alone (I/O ceiling)", read),
+    let mut rows = vec![
+        ("read the inputs alone (I/O ceiling of reading)", read),
+        (
+            "read the inputs and write outputs of the same shape and compression, no computation (I/O ceiling)",
+            read_write,
+        ),
         ("shearbox compute, output uncompressed (--deflate 0)", plain),
         ("shearbox compute (deflate 1 + shuffle, the default)", compute),
-    ] {
+    ];
+    if let Some(secs) = numpy {
+        rows.push(("numpy + netCDF4 script, same output and compression", secs));
+    }
+    println!(
+        "| run | wall s | steps/s | file MB/s | decoded MB/s | ÷ read alone | ÷ read and write |"
+    );
+    println!("|---|---|---|---|---|---|---|");
+    for (name, secs) in rows {
         println!(
-            "| {name} | {secs:.2} | {:.2} | {:.1} | {:.1} | {:.2} |",
+            "| {name} | {secs:.2} | {:.2} | {:.1} | {:.1} | {:.2} | {:.2} |",
             steps as f64 / secs,
             file_mb / secs,
             decoded_mb / secs,
-            secs / read
+            secs / read,
+            secs / read_write
         );
+    }
+    if let Some(secs) = numpy {
+        println!("shearbox compute is {:.1} x faster than the numpy script", secs / compute);
     }
     println!("output: {out_mb:.1} MB (NetCDF-4, deflate 1 + shuffle)");
     let json = format!(
         "{{\"steps\":{steps},\"file_mb\":{file_mb},\"decoded_mb\":{decoded_mb},\"output_mb\":{out_mb},\
-         \"threads\":{threads},\"read_s\":{read},\"compute_uncompressed_s\":{plain},\"compute_s\":{compute},\"ratio\":{}}}\n",
-        compute / read
+         \"threads\":{threads},\"read_s\":{read},\"read_write_s\":{read_write},\"numpy_s\":{},\"compute_uncompressed_s\":{plain},\"compute_s\":{compute},\"ratio_to_read\":{},\"ratio_to_read_write\":{}}}\n",
+        numpy.map_or("null".to_string(), |x| x.to_string()),
+        compute / read,
+        compute / read_write
     );
     std::fs::write(out_dir.join("compute.json"), json).unwrap();
     let _ = std::fs::remove_file(&out);

@@ -12,7 +12,7 @@ use anyhow::{Context, Result, bail};
 use clap::Args;
 use shearbox_cf::write::{AttrValue, Header, OutputFile, PartFile};
 
-use crate::compute::{command_line, inputs, now_iso, side_paths};
+use crate::compute::{WriterArg, command_line, inputs, now_iso, side_paths};
 use crate::staging::{self, Staged};
 use crate::{Interrupted, file_name};
 
@@ -28,6 +28,10 @@ pub struct JoinArgs {
     /// Deflate level of the gridded variables, 0 (none) to 9.
     #[arg(long, default_value_t = 1, value_parser = clap::value_parser!(i32).range(0..=9))]
     pub deflate: i32,
+    /// How compressed chunks reach the file: `direct` (compressed on all cores, appended
+    /// through HDF5) or `library` (the netCDF library compresses them on one thread).
+    #[arg(long, value_enum, default_value_t = WriterArg::Direct)]
+    pub writer: WriterArg,
     /// Replace existing output files.
     #[arg(long)]
     pub force: bool,
@@ -126,7 +130,7 @@ pub fn run(args: JoinArgs) -> Result<()> {
         .filter(|v| header.is_time_varying(v) && v.name != header.time_dim)
         .map(|v| v.name.clone())
         .collect();
-    let mut out = OutputFile::create(staged.temp(0), header)?;
+    let mut out = OutputFile::create_with(staged.temp(0), header, args.writer.into())?;
     let mut steps = 0;
     for p in &parts {
         for (t, time) in p.times().iter().enumerate() {

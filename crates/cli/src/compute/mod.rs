@@ -20,7 +20,7 @@ use std::time::Instant;
 use anyhow::{Context, Result, bail};
 use clap::Args;
 use shearbox_cf::output::{DiagnosticsLayout, Provenance};
-use shearbox_cf::write::OutputFile;
+use shearbox_cf::write::{OutputFile, Writer};
 use shearbox_cf::{CfError, Dataset, VarOverrides};
 use shearbox_core::{Config, Fields, Layer, MaskCounts, MaskReason, box_profile, compute};
 use shearbox_server::wire::ProfileDoc;
@@ -72,6 +72,10 @@ pub struct ComputeArgs {
     /// Deflate level of the gridded variables, 0 (none) to 9.
     #[arg(long, default_value_t = 1, value_parser = clap::value_parser!(i32).range(0..=9))]
     pub deflate: i32,
+    /// How compressed chunks reach the file: `direct` (compressed on all cores, appended
+    /// through HDF5) or `library` (the netCDF library compresses them on one thread).
+    #[arg(long, value_enum, default_value_t = WriterArg::Direct)]
+    pub writer: WriterArg,
     /// Replace existing output files.
     #[arg(long)]
     pub force: bool,
@@ -82,6 +86,24 @@ pub struct ComputeArgs {
     /// Print nothing but errors.
     #[arg(long, short)]
     pub quiet: bool,
+}
+
+/// The writer of `--writer`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum WriterArg {
+    /// Chunks compressed on all cores and appended through HDF5.
+    Direct,
+    /// Chunks compressed by the netCDF library on one thread.
+    Library,
+}
+
+impl From<WriterArg> for Writer {
+    fn from(w: WriterArg) -> Self {
+        match w {
+            WriterArg::Direct => Writer::Direct,
+            WriterArg::Library => Writer::Library,
+        }
+    }
 }
 
 /// The side files of an output `DIR/NAME.nc`: `DIR/NAME.layers.csv`, `DIR/NAME.levels.csv`,
@@ -248,7 +270,22 @@ pub fn run(args: ComputeArgs) -> Result<()> {
     // memory (see shearbox_cf::set_chunk_cache).
     shearbox_cf::set_chunk_cache(0)
         .map_err(|e| anyhow::anyhow!("setting up the netCDF library: {e}"))?;
-    let output = OutputFile::create(staged.temp(0), layout.header(&prov))?;
+    let output = match OutputFile::create_with(
+        staged.temp(0),
+        layout.header(&prov),
+        args.writer.into(),
+    ) {
+        Err(e) if args.writer == WriterArg::Direct => {
+            // The library path always works; say why the fast one did not.
+            if !args.quiet {
+                eprintln!(
+                    "shearbox: direct chunk writing is not available ({e}); using the netCDF library's writer"
+                );
+            }
+            OutputFile::create_with(staged.temp(0), layout.header(&prov), Writer::Library)?
+        }
+        other => other?,
+    };
     let sides = if regions.is_empty() {
         None
     } else {
