@@ -6,9 +6,9 @@
 //! - the I/O ceiling: reading the same variables of every step with the same reader
 //!   (`Dataset::read_fields`, the whole grid, one step at a time) and nothing else;
 //! - the I/O ceiling with writing: the same reads, and every step's output written with the same
-//!   writer, shape and compression (`OutputFile`, the layout of `shearbox compute`, the values
-//!   of the first step computed once beforehand, so the data compress as real output does),
-//!   and no computation;
+//!   writer, shape and compression (`OutputFile` with the default direct writer, the layout of
+//!   `shearbox compute`, the values of the first step computed once beforehand, so the data
+//!   compress as real output does), and no computation; also with the netCDF library's writer;
 //! - `shearbox compute` on the file (every adjacent layer), as a whole process, wall time,
 //!   with the output uncompressed and with the default deflate level 1 and shuffle (the
 //!   difference is the compression, which the netCDF library runs on one thread);
@@ -24,7 +24,7 @@ use std::process::Command;
 use std::time::Instant;
 
 use shearbox_cf::output::{DiagnosticsLayout, Provenance};
-use shearbox_cf::write::OutputFile;
+use shearbox_cf::write::{OutputFile, Writer};
 use shearbox_cf::{Dataset, VarOverrides};
 use shearbox_core::{Config, compute};
 
@@ -96,15 +96,19 @@ fn main() {
         &layers,
         &Config::default(),
     ));
-    let read_write = best_of(3, || {
-        let mut file = OutputFile::create(&out, layout.header(&prov)).unwrap();
-        for t in 0..steps {
-            let f = ds.read_fields(t, None).unwrap();
-            drop(f);
-            file.write_step(t as f64, first.clone()).unwrap();
-        }
-        file.close().unwrap();
-    });
+    let read_write_with = |writer: Writer| {
+        best_of(3, || {
+            let mut file = OutputFile::create_with(&out, layout.header(&prov), writer).unwrap();
+            for t in 0..steps {
+                let f = ds.read_fields(t, None).unwrap();
+                drop(f);
+                file.write_step(t as f64, first.clone()).unwrap();
+            }
+            file.close().unwrap();
+        })
+    };
+    let read_write = read_write_with(Writer::Direct);
+    let read_write_library = read_write_with(Writer::Library);
     drop(ds);
     let run = |deflate: &str| {
         best_of(3, || {
@@ -120,6 +124,22 @@ fn main() {
         })
     };
     let plain = run("0");
+    // Peak memory of one default run, from its own summary.
+    let logged = Command::new(env!("CARGO_BIN_EXE_shearbox"))
+        .args(["compute"])
+        .arg(&input)
+        .arg("-o")
+        .arg(&out)
+        .arg("--force")
+        .output()
+        .unwrap();
+    let log = String::from_utf8_lossy(&logged.stderr);
+    let peak_mib: f64 = log
+        .split("peak memory ")
+        .nth(1)
+        .and_then(|t| t.split_whitespace().next())
+        .and_then(|n| n.parse().ok())
+        .unwrap_or(f64::NAN);
     let compute = run("1");
     let out_mb = std::fs::metadata(&out).unwrap().len() as f64 / 1e6;
     let py = root().join("tests/reference/.venv/bin/python");
@@ -170,10 +190,12 @@ fn main() {
     if let Some(secs) = numpy {
         println!("shearbox compute is {:.1} x faster than the numpy script", secs / compute);
     }
-    println!("output: {out_mb:.1} MB (NetCDF-4, deflate 1 + shuffle)");
+    println!(
+        "output: {out_mb:.1} MB (NetCDF-4, deflate 1 + shuffle); peak memory of a run: {peak_mib:.0} MiB"
+    );
     let json = format!(
         "{{\"steps\":{steps},\"file_mb\":{file_mb},\"decoded_mb\":{decoded_mb},\"output_mb\":{out_mb},\
-         \"threads\":{threads},\"read_s\":{read},\"read_write_s\":{read_write},\"numpy_s\":{},\"compute_uncompressed_s\":{plain},\"compute_s\":{compute},\"ratio_to_read\":{},\"ratio_to_read_write\":{}}}\n",
+         \"threads\":{threads},\"peak_mib\":{peak_mib},\"read_s\":{read},\"read_write_s\":{read_write},\"read_write_library_s\":{read_write_library},\"numpy_s\":{},\"compute_uncompressed_s\":{plain},\"compute_s\":{compute},\"ratio_to_read\":{},\"ratio_to_read_write\":{}}}\n",
         numpy.map_or("null".to_string(), |x| x.to_string()),
         compute / read,
         compute / read_write

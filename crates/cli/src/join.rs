@@ -12,7 +12,7 @@ use anyhow::{Context, Result, bail};
 use clap::Args;
 use shearbox_cf::write::{AttrValue, Header, OutputFile, PartFile};
 
-use crate::compute::{WriterArg, command_line, inputs, now_iso, side_paths};
+use crate::compute::{WriteArgs, command_line, inputs, now_iso, side_paths};
 use crate::staging::{self, Staged};
 use crate::{Interrupted, file_name};
 
@@ -25,16 +25,9 @@ pub struct JoinArgs {
     /// The joined NetCDF-4 file to write.
     #[arg(short, long, value_name = "OUTPUT.nc")]
     pub output: PathBuf,
-    /// Deflate level of the gridded variables, 0 (none) to 9.
-    #[arg(long, default_value_t = 1, value_parser = clap::value_parser!(i32).range(0..=9))]
-    pub deflate: i32,
-    /// How compressed chunks reach the file: `direct` (compressed on all cores, appended
-    /// through HDF5) or `library` (the netCDF library compresses them on one thread).
-    #[arg(long, value_enum, default_value_t = WriterArg::Direct)]
-    pub writer: WriterArg,
-    /// Replace existing output files.
-    #[arg(long)]
-    pub force: bool,
+    /// How the output is written.
+    #[command(flatten)]
+    pub write: WriteArgs,
     /// Print nothing but errors.
     #[arg(long, short)]
     pub quiet: bool,
@@ -106,7 +99,7 @@ pub fn run(args: JoinArgs) -> Result<()> {
     if sides {
         targets.extend(side_paths(&args.output));
     }
-    let staged = Staged::new(&targets, args.force)?;
+    let staged = Staged::new(&targets, args.write.force)?;
     staging::install_interrupt_handler()?;
 
     let mut header = parts[0].header().clone();
@@ -123,14 +116,14 @@ pub fn run(args: JoinArgs) -> Result<()> {
     header.global_attrs.retain(|(n, _)| n != "history");
     let at = header.global_attrs.iter().position(|(n, _)| n == "source").map_or(0, |i| i + 1);
     header.global_attrs.insert(at, ("history".into(), AttrValue::Text(history)));
-    header.deflate = (args.deflate > 0).then_some(args.deflate);
+    header.deflate = args.write.deflate_level();
     let names: Vec<String> = header
         .vars
         .iter()
         .filter(|v| header.is_time_varying(v) && v.name != header.time_dim)
         .map(|v| v.name.clone())
         .collect();
-    let mut out = OutputFile::create_with(staged.temp(0), header, args.writer.into())?;
+    let mut out = OutputFile::create_with(staged.temp(0), header, args.write.writer.into())?;
     let mut steps = 0;
     for p in &parts {
         for (t, time) in p.times().iter().enumerate() {

@@ -69,6 +69,21 @@ pub struct ComputeArgs {
     /// Half-width of the equatorial band, degrees, where balance-based quantities are masked.
     #[arg(long, default_value_t = 5.0)]
     pub equator_band: f64,
+    /// How the output is written.
+    #[command(flatten)]
+    pub write: WriteArgs,
+    /// Leave out input files (or time steps) that cannot be read, and list them at the end,
+    /// instead of stopping.
+    #[arg(long)]
+    pub skip_bad: bool,
+    /// Print nothing but errors.
+    #[arg(long, short)]
+    pub quiet: bool,
+}
+
+/// How an output file is written (shared by `compute` and `join`).
+#[derive(Debug, Clone, Copy, Args)]
+pub struct WriteArgs {
     /// Deflate level of the gridded variables, 0 (none) to 9.
     #[arg(long, default_value_t = 1, value_parser = clap::value_parser!(i32).range(0..=9))]
     pub deflate: i32,
@@ -79,13 +94,13 @@ pub struct ComputeArgs {
     /// Replace existing output files.
     #[arg(long)]
     pub force: bool,
-    /// Leave out input files (or time steps) that cannot be read, and list them at the end,
-    /// instead of stopping.
-    #[arg(long)]
-    pub skip_bad: bool,
-    /// Print nothing but errors.
-    #[arg(long, short)]
-    pub quiet: bool,
+}
+
+impl WriteArgs {
+    /// The deflate level for the file header (`None` for 0).
+    pub fn deflate_level(&self) -> Option<i32> {
+        (self.deflate > 0).then_some(self.deflate)
+    }
 }
 
 /// The writer of `--writer`.
@@ -240,7 +255,7 @@ pub fn run(args: ComputeArgs) -> Result<()> {
     if !regions.is_empty() {
         targets.extend(side_paths(&args.output));
     }
-    let staged = Staged::new(&targets, args.force)?;
+    let staged = Staged::new(&targets, args.write.force)?;
     staging::install_interrupt_handler()?;
 
     let cfg = Config { equator_band_deg: args.equator_band, ..Config::default() };
@@ -264,7 +279,7 @@ pub fn run(args: ComputeArgs) -> Result<()> {
         ),
         comment: shearbox_server::CAUTION.to_string(),
         config: cfg,
-        deflate: (args.deflate > 0).then_some(args.deflate),
+        deflate: args.write.deflate_level(),
     };
     // Every step is read and written whole: the library's chunk caches would only hold
     // memory (see shearbox_cf::set_chunk_cache).
@@ -273,9 +288,9 @@ pub fn run(args: ComputeArgs) -> Result<()> {
     let output = match OutputFile::create_with(
         staged.temp(0),
         layout.header(&prov),
-        args.writer.into(),
+        args.write.writer.into(),
     ) {
-        Err(e) if args.writer == WriterArg::Direct => {
+        Err(e) if args.write.writer == WriterArg::Direct => {
             // The library path always works; say why the fast one did not.
             if !args.quiet {
                 eprintln!(
