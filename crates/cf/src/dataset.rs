@@ -1111,14 +1111,29 @@ impl Dataset {
             }
             views.push(view);
         }
+        let convert = |raw: f64| fv.conv.apply(fv.packing.value(raw)) as f32;
+        // The usual case, one piece already in the kernel's axis order, is converted straight
+        // from the library's buffer; otherwise the pieces are joined (and reordered) first.
+        // Either way the values are walked as a contiguous slice: element-wise iteration of a
+        // dynamic-rank array costs more than the conversion itself.
+        if let [only] = views.as_slice() {
+            if let Some(slice) = only.as_slice() {
+                let data: Vec<f32> = slice.iter().map(|&raw| convert(raw)).collect();
+                return ArrayD::from_shape_vec(IxDyn(only.shape()), data).map_err(|e| {
+                    CfError::Damaged { file: self.path.clone(), reason: format!("internal: {e}") }
+                });
+            }
+        }
         let joined =
             ndarray::concatenate(Axis(lon_axis), &views).map_err(|e| CfError::Damaged {
                 file: self.path.clone(),
                 reason: format!("internal: joining the column pieces of {:?}: {e}", fv.name),
             })?;
         let shape = joined.shape().to_vec();
-        let data: Vec<f32> =
-            joined.iter().map(|&raw| fv.conv.apply(fv.packing.value(raw)) as f32).collect();
+        let data: Vec<f32> = match joined.as_slice() {
+            Some(slice) => slice.iter().map(|&raw| convert(raw)).collect(),
+            None => joined.iter().map(|&raw| convert(raw)).collect(),
+        };
         ArrayD::from_shape_vec(IxDyn(&shape), data).map_err(|e| CfError::Damaged {
             file: self.path.clone(),
             reason: format!("internal: {e}"),
