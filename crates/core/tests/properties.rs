@@ -1,13 +1,13 @@
 //! Properties that follow from the numerical contract itself: a sub-box with a one-cell halo
-//! gives the whole grid's numbers, serial and parallel runs agree bit for bit, and the
-//! hemisphere rules of the thermal wind hold.
+//! gives the whole grid's numbers, serial and parallel runs agree bit for bit, reused output
+//! arrays give the same bits as fresh ones, and the hemisphere rules of the thermal wind hold.
 
 mod common;
 
 use ndarray::Array2;
 use shearbox_core::{
     BBox, Config, Diagnostics, Fields, FieldsBuilder, Grid, LayerDiagnostics, Levels, Parallelism,
-    box_profile, compute, compute_with,
+    box_profile, compute, compute_into, compute_with,
 };
 
 /// A smooth, hydrostatically built atmosphere with every optional field, on `grid`.
@@ -199,6 +199,133 @@ fn assert_identical(a: &Diagnostics, b: &Diagnostics) {
                 .zip(lb.geostrophic_u.iter())
                 .all(|(p, q)| p.to_bits() == q.to_bits())
         );
+    }
+}
+
+/// Every array of a layer, by name, present or not.
+fn all_arrays(l: &LayerDiagnostics) -> Vec<(&'static str, Option<&Array2<f32>>)> {
+    let mut v = vec![
+        ("thickness", Some(&l.thickness)),
+        ("mean_temperature", Some(&l.mean_temperature)),
+        ("thermal_wind_u", Some(&l.thermal_wind_u)),
+        ("thermal_wind_v", Some(&l.thermal_wind_v)),
+        ("temperature_gradient", Some(&l.temperature_gradient)),
+        ("baroclinic_torque", Some(&l.baroclinic_torque)),
+        ("rotational_torque", Some(&l.rotational_torque)),
+        ("thickness_from_temperature", l.thickness_from_temperature.as_ref()),
+        ("balance_ratio", l.balance_ratio.as_ref()),
+        ("thermal_advection", l.thermal_advection.as_ref()),
+        ("turning", l.turning.as_ref()),
+        ("n_squared", l.n_squared.as_ref()),
+        ("eady_growth_rate", l.eady_growth_rate.as_ref()),
+    ];
+    for (names, p) in [
+        (["observed_shear_u", "observed_shear_v"], &l.observed_shear),
+        (["ageostrophic_shear_u", "ageostrophic_shear_v"], &l.ageostrophic_shear),
+    ] {
+        let (u, w) = p.as_ref().map(|(u, w)| (u, w)).unzip();
+        v.push((names[0], u));
+        v.push((names[1], w));
+    }
+    v
+}
+
+/// The same layers and levels, the same optional outputs, the same bits everywhere.
+fn assert_same_everywhere(got: &Diagnostics, want: &Diagnostics) {
+    let same = |a: &Array2<f32>, b: &Array2<f32>| {
+        a.dim() == b.dim() && a.iter().zip(b.iter()).all(|(p, q)| p.to_bits() == q.to_bits())
+    };
+    assert_eq!(got.levels.len(), want.levels.len());
+    for (k, (g, w)) in got.levels.iter().zip(&want.levels).enumerate() {
+        assert!(same(&g.geostrophic_u, &w.geostrophic_u), "geostrophic u at level {k}");
+        assert!(same(&g.geostrophic_v, &w.geostrophic_v), "geostrophic v at level {k}");
+    }
+    assert_eq!(got.layers.len(), want.layers.len());
+    for (g, w) in got.layers.iter().zip(&want.layers) {
+        assert_eq!(g.layer, w.layer);
+        assert_eq!(g.thickness_method, w.thickness_method);
+        assert_eq!(g.mean_temperature_kind, w.mean_temperature_kind);
+        assert_eq!(g.mask, w.mask, "mask of {:?}", w.layer);
+        for ((name, a), (_, b)) in all_arrays(g).into_iter().zip(all_arrays(w)) {
+            match (a, b) {
+                (Some(a), Some(b)) => assert!(same(a, b), "{name} of {:?}", w.layer),
+                (None, None) => {}
+                _ => panic!("{name} of {:?}: present in one result only", w.layer),
+            }
+        }
+    }
+}
+
+/// Overwrites every value held by `out` with a value the kernel never writes there.
+fn poison(out: &mut Diagnostics) {
+    for l in &mut out.levels {
+        l.geostrophic_u.fill(7.0);
+        l.geostrophic_v.fill(7.0);
+    }
+    for l in &mut out.layers {
+        l.mask.fill(99);
+        for a in [
+            &mut l.thickness,
+            &mut l.mean_temperature,
+            &mut l.thermal_wind_u,
+            &mut l.thermal_wind_v,
+            &mut l.temperature_gradient,
+            &mut l.baroclinic_torque,
+            &mut l.rotational_torque,
+        ] {
+            a.fill(7.0);
+        }
+        for a in [
+            &mut l.thickness_from_temperature,
+            &mut l.balance_ratio,
+            &mut l.thermal_advection,
+            &mut l.turning,
+            &mut l.n_squared,
+            &mut l.eady_growth_rate,
+        ]
+        .into_iter()
+        .flatten()
+        {
+            a.fill(7.0);
+        }
+        for (u, v) in [&mut l.observed_shear, &mut l.ageostrophic_shear].into_iter().flatten() {
+            u.fill(7.0);
+            v.fill(7.0);
+        }
+    }
+}
+
+/// `compute_into` writes every value of the arrays it reuses, and replaces those that do not
+/// fit: after runs on other grids, other inputs and other layers, with every old value
+/// overwritten by a sentinel, its result equals a fresh run's bit for bit.
+#[test]
+fn reused_outputs_equal_fresh_ones() {
+    let global =
+        atmosphere(common::grid(common::span(-90.0, 90.0, 3.0), common::span(0.0, 357.0, 3.0)));
+    let regional =
+        atmosphere(common::grid(common::span(10.0, 70.0, 2.5), common::span(150.0, 200.0, 2.5)));
+    // The global grid with geopotential alone: no temperature, humidity, wind or surface.
+    let z = global.geopotential_height().unwrap().to_owned();
+    let z_only = FieldsBuilder::new(global.grid().clone(), global.levels().clone())
+        .geopotential_height(z)
+        .build()
+        .unwrap();
+    let levels = global.levels().clone();
+    let deep = vec![levels.layer(850.0, 300.0).unwrap()];
+    let cfg = Config::default();
+    let mut out = Diagnostics::default();
+    for (fields, layers) in [
+        (&regional, all_layers(&levels)),
+        (&global, all_layers(&levels)),
+        (&z_only, levels.adjacent_layers()),
+        (&global, deep),
+        (&global, all_layers(&levels)),
+        (&global, all_layers(&levels)),
+    ] {
+        poison(&mut out);
+        compute_into(&mut out, fields, &layers, &cfg, Parallelism::Rayon);
+        let fresh = compute_with(fields, &layers, &cfg, Parallelism::Serial);
+        assert_same_everywhere(&out, &fresh);
     }
 }
 
