@@ -576,6 +576,43 @@ fn an_interrupted_run_leaves_the_previous_output_and_nothing_else() {
     }
 }
 
+#[test]
+fn a_full_disk_leaves_no_file_and_says_why() {
+    // A file-size limit (ulimit -f, in 1024-byte blocks) stands in for a full disk: the run
+    // must stop with an error naming the cause, keep the earlier output and leave no
+    // temporary file, with either writer.
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("nightly.nc");
+    std::fs::write(&out, b"yesterday's output").unwrap();
+    let pattern = series().join("kestrel_series_*.nc");
+    for writer in ["direct", "library"] {
+        let command = format!(
+            "ulimit -f 3000; exec '{}' compute '{}' -o '{}' --force -q --writer {writer}",
+            env!("CARGO_BIN_EXE_shearbox"),
+            s(&pattern),
+            s(&out)
+        );
+        let run = Command::new("sh").args(["-c", &command]).output().unwrap();
+        let err = String::from_utf8_lossy(&run.stderr);
+        assert_eq!(run.status.code(), Some(1), "{writer}: {err}");
+        assert!(
+            err.contains("nightly.nc") && err.contains("nothing was written"),
+            "{writer}: {err}"
+        );
+        assert!(!err.contains("panicked"), "{writer}: {err}");
+        assert_eq!(std::fs::read(&out).unwrap(), b"yesterday's output", "{writer}");
+        let names: Vec<String> = std::fs::read_dir(dir.path())
+            .unwrap()
+            .filter_map(Result::ok)
+            .map(|e| e.file_name().to_string_lossy().into_owned())
+            .collect();
+        assert_eq!(names, vec!["nightly.nc".to_string()], "{writer}");
+        if writer == "direct" {
+            assert!(err.contains("File too large"), "{err}");
+        }
+    }
+}
+
 /// The peak resident memory a run reports, MiB.
 fn peak_mib(log: &str) -> f64 {
     let tail = log.split("peak memory ").nth(1).expect("summary with peak memory");

@@ -35,6 +35,17 @@ use hdf5_metno_sys::h5i::hid_t;
 use hdf5_metno_sys::h5p::{H5P_DEFAULT, H5Pclose, H5Pget_chunk, H5Pget_filter2, H5Pget_nfilters};
 use hdf5_metno_sys::h5z::{H5Z_FILTER_DEFLATE, H5Z_FILTER_SHUFFLE};
 
+/// Tells HDF5 not to close files at process exit. A file whose writes failed (disk full, file
+/// size limit) cannot be closed cleanly, and HDF5's exit handler then crashes trying again;
+/// every file of this crate is closed explicitly, and a failed output is deleted anyway. Must
+/// run before the first library call of the process to take effect.
+pub(crate) fn skip_exit_cleanup() {
+    // SAFETY: H5dont_atexit only sets a flag in the library; it takes no arguments.
+    unsafe {
+        hdf5_metno_sys::h5::H5dont_atexit();
+    }
+}
+
 /// The netCDF default fill value of `double`, for the unused part of the time chunk.
 const FILL_F64: f64 = 9.969_209_968_386_869e36;
 
@@ -116,7 +127,11 @@ pub(crate) struct Direct {
 }
 
 fn check(status: i32, what: impl FnOnce() -> String) -> Result<(), String> {
-    if status < 0 { Err(format!("HDF5 failed while {}", what())) } else { Ok(()) }
+    if status < 0 {
+        Err(format!("HDF5 failed while {} ({})", what(), crate::write::disk_hint()))
+    } else {
+        Ok(())
+    }
 }
 
 /// The filters and chunk shape of a dataset.

@@ -87,6 +87,13 @@ pub(crate) fn drop_there<T: Send + 'static>(value: T) {
     let _ = run(move || drop(value));
 }
 
+/// Prepares the library for a process that writes files: HDF5 is told not to close files at
+/// exit (a file whose writes failed, on a full disk or past a size limit, would crash its exit
+/// handler; every file is closed explicitly). Call it before any other library call.
+pub fn prepare_for_writing() {
+    let _ = run(crate::chunks::skip_exit_cleanup);
+}
+
 /// Sets the chunk cache that the netCDF library gives each variable of every file opened or
 /// created after the call (process-wide). A streaming run that reads and writes each time
 /// step whole gains nothing from a cache but the memory it holds (by default up to 16 MB per

@@ -56,7 +56,7 @@ pub mod write;
 pub use calendar::Calendar;
 pub use dataset::Dataset;
 pub use error::CfError;
-pub use io::set_chunk_cache;
+pub use io::{prepare_for_writing, set_chunk_cache};
 pub use role::{Recognised, Role, VarOverrides};
 pub use units::G0;
 

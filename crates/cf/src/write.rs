@@ -209,6 +209,17 @@ fn from_nc(value: netcdf::AttributeValue) -> Option<AttrValue> {
     })
 }
 
+/// What the system last reported, with what to check: the library's "HDF error" says little,
+/// the system's error (disk full, file too large) says what to do.
+pub(crate) fn disk_hint() -> String {
+    let os = std::io::Error::last_os_error();
+    let check = "check the free space and file size limits of the output's disk";
+    match os.raw_os_error() {
+        Some(0) | None => check.to_string(),
+        _ => format!("the system last reported: {os}; {check}"),
+    }
+}
+
 fn lib_err(path: &Path, what: impl Into<String>) -> impl FnOnce(netcdf::Error) -> CfError {
     let (file, what) = (path.to_path_buf(), what.into());
     move |e| CfError::Write { file, what, source: Some(Box::new(e)) }
@@ -462,7 +473,11 @@ impl OutputFile {
                 })
                 .map_err(io_err(&path, "writing a time step"))?;
                 (
-                    result.map_err(lib_err(&path, format!("writing time step {t}"))),
+                    result.map_err(|e| CfError::Write {
+                        file: path.clone(),
+                        what: format!("writing time step {t} ({})", disk_hint()),
+                        source: Some(Box::new(e)),
+                    }),
                     Backend::Library(file),
                 )
             }

@@ -42,6 +42,7 @@ fn comparable(h: &Header) -> Header {
 
 /// Runs `shearbox join`.
 pub fn run(args: JoinArgs) -> Result<()> {
+    shearbox_cf::prepare_for_writing();
     let paths = inputs::expand(&args.parts)?;
     let mut parts = Vec::new();
     for p in &paths {

@@ -25,6 +25,7 @@ fn pending() -> std::sync::MutexGuard<'static, Vec<PathBuf>> {
 /// stop at the next time step ([`interrupted`]); a second one removes the temporary files
 /// at once and exits with status 130.
 pub fn install_interrupt_handler() -> Result<()> {
+    fail_writes_past_the_size_limit();
     ctrlc::set_handler(|| {
         if INTERRUPTED.swap(true, Ordering::SeqCst) {
             for p in pending().iter() {
@@ -35,6 +36,28 @@ pub fn install_interrupt_handler() -> Result<()> {
     })
     .context("installing the interrupt handler")
 }
+
+/// Makes a write past the process's file-size limit (`ulimit -f`) fail with an error
+/// ("File too large") instead of killing the process with SIGXFSZ, so that a run that hits
+/// the limit removes its temporary files and says why, as it does when the disk is full.
+#[cfg(target_os = "linux")]
+#[allow(unsafe_code)]
+pub fn fail_writes_past_the_size_limit() {
+    unsafe extern "C" {
+        fn signal(signum: std::ffi::c_int, handler: usize) -> usize;
+    }
+    const SIGXFSZ: std::ffi::c_int = 25;
+    const SIG_IGN: usize = 1;
+    // SAFETY: setting a signal's disposition to "ignore" installs no handler code and touches
+    // no memory of ours; SIGXFSZ is 25 on every Linux architecture this builds for.
+    unsafe {
+        signal(SIGXFSZ, SIG_IGN);
+    }
+}
+
+/// Elsewhere the default disposition stays.
+#[cfg(not(target_os = "linux"))]
+pub fn fail_writes_past_the_size_limit() {}
 
 /// Whether an interrupt arrived.
 pub fn interrupted() -> bool {

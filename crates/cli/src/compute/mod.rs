@@ -238,6 +238,7 @@ pub fn run(args: ComputeArgs) -> Result<()> {
         }
     }
 
+    shearbox_cf::prepare_for_writing();
     let paths = inputs::expand(&args.inputs)?;
     let overrides: VarOverrides = overrides(&args.vars)?;
     let layer_spec = args.layers.clone();
@@ -338,7 +339,17 @@ pub fn run(args: ComputeArgs) -> Result<()> {
         sides,
         &mut progress,
         args.skip_bad,
-    )?;
+    )
+    .map_err(|e| {
+        if e.is::<Interrupted>() {
+            e
+        } else {
+            e.context(format!(
+                "writing {} failed; nothing was written under that name",
+                args.output.display()
+            ))
+        }
+    })?;
     staged.commit()?;
     progress.finish();
 
