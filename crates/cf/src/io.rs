@@ -25,10 +25,24 @@ thread_local! {
     static ON_WORKER: Cell<bool> = const { Cell::new(false) };
 }
 
+/// Keeps the default panic report off the netCDF thread: a panic there (the `netcdf` crate
+/// unwraps some library errors on damaged files) is caught and returned as an error that
+/// names the file, so printing it too would only alarm. Panics elsewhere are reported as
+/// before.
+fn quiet_panics_on_the_worker() {
+    let previous = std::panic::take_hook();
+    std::panic::set_hook(Box::new(move |info| {
+        if !ON_WORKER.with(Cell::get) {
+            previous(info);
+        }
+    }));
+}
+
 fn worker() -> Option<&'static Mutex<Sender<Job>>> {
     static WORKER: OnceLock<Option<Mutex<Sender<Job>>>> = OnceLock::new();
     WORKER
         .get_or_init(|| {
+            quiet_panics_on_the_worker();
             let (tx, rx) = mpsc::channel::<Job>();
             std::thread::Builder::new()
                 .name("shearbox-netcdf".into())
