@@ -17,7 +17,7 @@ use axum::http::request::Parts;
 use axum::http::{HeaderMap, HeaderValue, StatusCode, header};
 use axum::response::{IntoResponse, Response};
 use serde::Serialize;
-use shearbox_cf::TimeSelector;
+use shearbox_cf::{CfError, TimeSelector};
 use shearbox_core::{BBox, Fields};
 
 use crate::cache::{CacheKey, Cached, fields_bytes};
@@ -420,12 +420,51 @@ fn inputs(state: &AppState, loaded: &Loaded, plan: &Plan) -> Result<Arc<Fields>,
         return Ok(fields);
     }
     Metrics::add(&state.metrics.cache_misses, 1);
-    let fields = query::read_inputs(&loaded.dataset, plan)
-        .map_err(|e| ApiError::from_query(&loaded.name, e))?;
+    let fields = query::read_inputs(&loaded.dataset, plan).map_err(|e| read_failure(loaded, e))?;
+    // Checked after the read, so that a rewrite during it is caught too.
+    if loaded.changed_in_place() {
+        let file = loaded.file_name();
+        tracing::error!(
+            dataset = %loaded.name,
+            file = %file,
+            "the served file was rewritten in place; its values are not served until a good \
+             file replaces it (write new files aside and rename them over the old)"
+        );
+        return Err(ApiError::Unavailable {
+            dataset: loaded.name.clone(),
+            reason: format!(
+                "{file} was rewritten in place while served; retry once a good file is in place"
+            ),
+        });
+    }
     Metrics::add(&state.metrics.bytes_read, fields_bytes(&fields) as u64);
     let fields = Arc::new(fields);
     state.cache.insert(key, Cached::Inputs(Arc::clone(&fields)));
     Ok(fields)
+}
+
+/// A failed read of a file that opened and validated: the file changed under the service
+/// (rewritten or truncated in place) or the disk failed. Answered as 503 naming the file
+/// without its folder, logged in full; the next good file clears it.
+fn read_failure(loaded: &Loaded, e: query::QueryError) -> ApiError {
+    let query::QueryError::Data(cf) = e else { return ApiError::from_query(&loaded.name, e) };
+    if matches!(*cf, CfError::TimeNotFound { .. } | CfError::BadTimeSelector { .. }) {
+        return ApiError::from_query(&loaded.name, query::QueryError::Data(cf));
+    }
+    let file = loaded.file_name();
+    let full = loaded.fingerprint.path.display().to_string();
+    let message = cf.to_string().replace(&full, &file);
+    tracing::error!(
+        dataset = %loaded.name,
+        file = %file,
+        error = %message,
+        "reading the served file failed; was it changed in place? replace files by renaming \
+         a new one over them"
+    );
+    ApiError::Unavailable {
+        dataset: loaded.name.clone(),
+        reason: format!("reading {file} failed ({message}); retry once a good file is in place"),
+    }
 }
 
 /// Reads (or reuses) the inputs, computes, and serialises. Runs on a blocking thread.

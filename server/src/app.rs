@@ -7,7 +7,12 @@
 //!
 //! Layers, outermost first: a panic in a handler becomes a logged 500; gzip when the client
 //! accepts it; CORS for the configured origins; one log line and the metrics per request;
-//! bearer tokens on `/v1/…` when configured.
+//! a URI longer than [`crate::conn::MAX_URI_BYTES`] gets 414; bearer tokens on `/v1/…` when
+//! configured. The log line names the method, route, URI, status and latency, never a
+//! header, so tokens stay out of the log.
+//!
+//! [`run`] serves through [`crate::conn::serve`], which bounds each connection in time and
+//! size, and warns when the address it listens on is reachable from other machines.
 
 use std::future::Future;
 use std::io::IsTerminal;
@@ -84,6 +89,7 @@ pub fn app(state: AppState) -> Router {
         .fallback(not_found)
         .method_not_allowed_fallback(method_not_allowed)
         .layer(middleware::from_fn_with_state(state.clone(), authenticate))
+        .layer(middleware::from_fn(limit_uri))
         .layer(middleware::from_fn_with_state(state.clone(), observe));
     if let Some(cors) = cors(&state.config.cors_origins) {
         router = router.layer(cors);
@@ -154,6 +160,15 @@ async fn observe(State(state): State<AppState>, request: Request, next: Next) ->
     response
 }
 
+/// Refuses a URI longer than [`crate::conn::MAX_URI_BYTES`] before anything parses it.
+async fn limit_uri(request: Request, next: Next) -> Response {
+    let len = request.uri().path_and_query().map_or(0, |pq| pq.as_str().len());
+    if len > crate::conn::MAX_URI_BYTES {
+        return ApiError::UriTooLong { len, max: crate::conn::MAX_URI_BYTES }.into_response();
+    }
+    next.run(request).await
+}
+
 /// Bearer tokens on `/v1/…`, when any are configured.
 async fn authenticate(State(state): State<AppState>, request: Request, next: Next) -> Response {
     let tokens = &state.config.tokens;
@@ -214,15 +229,38 @@ pub async fn watch(state: AppState, interval: Duration) {
     }
 }
 
+/// The warning logged when the service listens on `addr`, if other machines can reach it.
+pub fn exposure_warning(addr: std::net::SocketAddr, tokens: bool) -> Option<String> {
+    if addr.ip().is_loopback() {
+        return None;
+    }
+    let guard = if tokens {
+        "bearer tokens guard /v1/…; /healthz, /readyz, /metrics and /openapi.json are open"
+    } else {
+        "no bearer tokens are configured, so anyone who reaches the port can query every dataset"
+    };
+    Some(format!(
+        "listening on {addr}, which other machines can reach (not loopback); {guard}; keep \
+         the port off the public network or put a proxy with TLS in front"
+    ))
+}
+
 /// Serves `state` on `listener` until `shutdown` completes, reloading changed files in the
-/// background. Requests in flight at shutdown are finished.
+/// background. Requests in flight at shutdown are finished. Logs a warning when the
+/// listener's address is not a loopback one.
 pub async fn run(
     listener: TcpListener,
     state: AppState,
     shutdown: impl Future<Output = ()> + Send + 'static,
 ) -> std::io::Result<()> {
+    let addr = listener.local_addr()?;
+    if let Some(warning) = exposure_warning(addr, !state.config.tokens.is_empty()) {
+        tracing::warn!("{warning}");
+    }
     let watcher = tokio::spawn(watch(state.clone(), state.config.reload_interval));
-    let result = axum::serve(listener, app(state)).with_graceful_shutdown(shutdown).await;
+    let limit = Duration::from_secs_f64(state.config.limits.request_timeout_secs);
+    let metrics = std::sync::Arc::clone(&state.metrics);
+    let result = crate::conn::serve(listener, app(state), metrics, limit, shutdown).await;
     watcher.abort();
     result
 }

@@ -11,8 +11,10 @@
 //! through the library) on a blocking thread; only then is it swapped in. A file that fails
 //! keeps the old one serving; the failure is logged and shown by `/readyz` until a good file
 //! replaces it. Replace files by writing a new one and renaming it over the old (atomic), as
-//! the fixture generator does: a file rewritten in place under an open handle can change under
-//! a request.
+//! the fixture generator does. A file rewritten in place under its open handle is refused
+//! (the library would validate it through the handle it already holds) and, until a good file
+//! is renamed into place, box queries that need a read answer 503 instead of numbers from
+//! changed bytes.
 
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
@@ -117,6 +119,17 @@ impl Loaded {
     /// The file name, without its folder.
     pub fn file_name(&self) -> String {
         file_name(&self.fingerprint.path)
+    }
+
+    /// Whether the open file was rewritten in place since it was loaded: its path still
+    /// names the same inode, whose size or modification time has changed. The open handle
+    /// then reads the new bytes (the library reads zeros past a truncated end), so values
+    /// read now cannot be trusted. A file deleted or renamed over keeps its old inode, which
+    /// the handle still reads intact: that is no change here.
+    pub fn changed_in_place(&self) -> bool {
+        let Ok(now) = Fingerprint::of(&self.fingerprint.path) else { return false };
+        now.inode == self.fingerprint.inode
+            && (now.len != self.fingerprint.len || now.modified != self.fingerprint.modified)
     }
 }
 
@@ -281,6 +294,23 @@ impl Catalog {
                 return PollOutcome::Settling;
             }
             state.pending = None;
+            // The served file itself, rewritten in place: the library would answer a second
+            // open from the handle it holds, so the new bytes cannot be validated. Refuse it;
+            // requests then get 503 for anything not cached (`Loaded::changed_in_place`).
+            let rewritten = state
+                .current
+                .as_ref()
+                .is_some_and(|l| l.fingerprint.path == fp.path && l.fingerprint.inode == fp.inode);
+            if rewritten {
+                let message = format!(
+                    "{} was rewritten in place while served; its new contents are not loaded \
+                     and reads of the old ones are refused: write new files aside and rename \
+                     them over the old",
+                    file_name(&fp.path)
+                );
+                state.failure = Some(Failure { fingerprint: Some(fp), message: message.clone() });
+                return PollOutcome::Failed(message);
+            }
         }
         self.load_into(name, slot, fp)
     }

@@ -37,6 +37,13 @@ pub enum ApiError {
     },
     /// 405: the route exists, the method does not.
     MethodNotAllowed,
+    /// 414: the URI is longer than the service reads.
+    UriTooLong {
+        /// Its length, bytes.
+        len: usize,
+        /// The limit, bytes.
+        max: usize,
+    },
     /// 413: a gridded answer would exceed the cell limit.
     TooManyCells {
         /// What was asked and the limit.
@@ -80,6 +87,7 @@ impl ApiError {
             ApiError::Unauthorized => StatusCode::UNAUTHORIZED,
             ApiError::NotFound { .. } => StatusCode::NOT_FOUND,
             ApiError::MethodNotAllowed => StatusCode::METHOD_NOT_ALLOWED,
+            ApiError::UriTooLong { .. } => StatusCode::URI_TOO_LONG,
             ApiError::TooManyCells { .. } => StatusCode::PAYLOAD_TOO_LARGE,
             ApiError::Overloaded | ApiError::Timeout | ApiError::Unavailable { .. } => {
                 StatusCode::SERVICE_UNAVAILABLE
@@ -102,6 +110,11 @@ impl ApiError {
             ApiError::MethodNotAllowed => {
                 ("method_not_allowed", "this route answers GET (and HEAD) only".into(), None)
             }
+            ApiError::UriTooLong { len, max } => (
+                "uri_too_long",
+                format!("the URI is {len} bytes long; the service reads at most {max}"),
+                None,
+            ),
             ApiError::TooManyCells { message, stride } => {
                 ("too_many_cells", message.clone(), Some(*stride))
             }

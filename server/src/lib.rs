@@ -21,6 +21,8 @@
 //! - Decoded inputs and finished answers are kept in an LRU bounded in bytes ([`cache`]).
 //! - Changed files are reloaded in the background and swapped in atomically once they open
 //!   and validate; requests in flight finish on the file they started with.
+//! - Each connection lives under time and size limits ([`conn`]): a slow client cannot hold
+//!   it open past the request time limit, and none holds a place of the work gate.
 //! - Errors are typed ([`error::ApiError`]) and pick their status; a 5xx is logged, never
 //!   echoed.
 
@@ -29,6 +31,7 @@ pub mod app;
 pub mod cache;
 pub mod catalog;
 pub mod config;
+pub mod conn;
 pub mod error;
 pub mod metrics;
 pub mod query;

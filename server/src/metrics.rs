@@ -39,6 +39,10 @@ pub struct Metrics {
     pub reloads: AtomicU64,
     /// Loads or reloads that failed.
     pub reload_failures: AtomicU64,
+    /// Connections open now.
+    pub connections_open: AtomicU64,
+    /// Connections closed because the client sent its request or read the answer too slowly.
+    pub connections_timed_out: AtomicU64,
 }
 
 fn escape(label: &str) -> String {
@@ -133,13 +137,20 @@ impl Metrics {
                 "Dataset loads that failed (the previous file keeps serving).",
                 &self.reload_failures,
             ),
+            (
+                "shearbox_connections_timed_out_total",
+                "Connections closed because the client sent or read too slowly.",
+                &self.connections_timed_out,
+            ),
         ];
         for (name, help, counter) in counters {
             let _ = writeln!(out, "# HELP {name} {help}");
             let _ = writeln!(out, "# TYPE {name} counter");
             let _ = writeln!(out, "{name} {}", counter.load(Ordering::Relaxed));
         }
-        for (name, help, value) in gauges {
+        let open = self.connections_open.load(Ordering::Relaxed) as f64;
+        let open = ("shearbox_connections_open", "HTTP connections open now.", open);
+        for (name, help, value) in gauges.iter().chain(std::iter::once(&open)) {
             let _ = writeln!(out, "# HELP {name} {help}");
             let _ = writeln!(out, "# TYPE {name} gauge");
             let _ = writeln!(out, "{name} {value}");

@@ -28,8 +28,8 @@ pub struct Shared {
     pub cache: Cache,
     /// Bounds on concurrent and waiting work.
     pub gate: WorkGate,
-    /// Counters and histograms.
-    pub metrics: Metrics,
+    /// Counters and histograms (shared with the connection tasks).
+    pub metrics: Arc<Metrics>,
     /// The kernel's configuration.
     pub kernel: shearbox_core::Config,
     pub(crate) openapi: OnceLock<Bytes>,
@@ -59,7 +59,7 @@ impl AppState {
             catalog,
             cache: Cache::new(cache_bytes),
             gate,
-            metrics: Metrics::default(),
+            metrics: Arc::new(Metrics::default()),
             kernel,
             openapi: OnceLock::new(),
             config,
