@@ -429,6 +429,11 @@ fn parse_datetime(text: &str) -> Result<(DateTime, i64), String> {
     if neg {
         year = -year;
     }
+    // Far beyond any model or proxy record, and far inside the range where the day-number
+    // arithmetic (i64 days, i128 microseconds) is exact.
+    if year.abs() > MAX_YEAR {
+        return Err(format!("year {year} is out of range (±{MAX_YEAR})"));
+    }
     let month: u32 = number(parts[1], "month")?;
     let day: u32 = number(parts[2], "day")?;
     if !(1..=12).contains(&month) || !(1..=31).contains(&day) {
@@ -494,7 +499,7 @@ fn parse_zone(zone: &str) -> Result<i64, String> {
     };
     let (h, m) = if let Some((h, m)) = body.split_once(':') {
         (number::<i64>(h, "zone hour")?, number::<i64>(m, "zone minute")?)
-    } else if body.len() == 4 {
+    } else if body.len() == 4 && body.is_ascii() {
         (number::<i64>(&body[..2], "zone hour")?, number::<i64>(&body[2..], "zone minute")?)
     } else {
         (number::<i64>(body, "zone hour")?, 0)
@@ -569,6 +574,9 @@ pub fn from_unix_seconds(secs: i64) -> DateTime {
         secs.rem_euclid(86_400) * 1_000_000,
     )
 }
+
+/// The largest year (either sign) a date may have.
+pub const MAX_YEAR: i64 = 100_000_000;
 
 /// Parses an ISO 8601 instant as written by a user (`2026-01-15T06:00:00Z`, `…T06:00Z`,
 /// `…T06:00:00`, `2026-01-15T06`, `2026-01-15`, with a space instead of `T` too). A zone

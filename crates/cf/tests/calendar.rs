@@ -282,3 +282,15 @@ fn every_calendar_through_a_file() -> TestResult {
     }
     Ok(())
 }
+
+#[test]
+fn zones_with_non_ascii_text_are_refused_not_a_panic() {
+    // Inputs found by the fuzzer (fuzz/regressions): a four-byte "zone" that is not four
+    // characters used to be cut inside a character.
+    assert!(TimeSelector::parse("4052-01-15    016-9\u{8850}").is_err());
+    assert!(calendar::parse_units("seconds since 0985-1-1 0 -d\u{710c}").is_err());
+    assert!(calendar::parse_iso("2026-01-15T06:00+\u{e9}5").is_err());
+    // A year so large that shifting it by a zone overflowed the day arithmetic.
+    assert!(TimeSelector::parse("26100777777257670-12-5 12-5").is_err());
+    assert!(TimeSelector::parse("100000000-12-05T12:00-05:00").is_ok());
+}

@@ -268,16 +268,13 @@ impl BBox {
         Self::new(v[0], v[1], v[2], v[3])
     }
 
-    /// Width of the box in degrees of longitude, in (0, 360]; a box whose west and east
-    /// differ by 360° or more covers the whole circle.
+    /// Width of the box in degrees of longitude, eastward from west to east, in [0, 360]; a
+    /// box whose east lies 360° or more east of its west covers the whole circle. West > east
+    /// crosses the antimeridian, whatever representation the two values use (170, −340 is
+    /// the 210° from 170°E east to 20°E).
     pub fn width(&self) -> f64 {
-        if self.east - self.west >= 360.0 {
-            360.0
-        } else if self.east >= self.west {
-            self.east - self.west
-        } else {
-            self.east - self.west + 360.0
-        }
+        let d = self.east - self.west;
+        if d >= 360.0 { 360.0 } else { d.rem_euclid(360.0) }
     }
 
     /// Whether a longitude (any representation) lies inside the box, edges included.

@@ -409,3 +409,27 @@ fn thermal_wind_keeps_cold_air_on_its_left_in_the_north() {
         }
     }
 }
+
+#[test]
+fn a_box_is_the_same_whatever_representation_its_longitudes_use() {
+    // GeoJSON bbox order (RFC 7946 §5): west to east, crossing the antimeridian when west >
+    // east. Any of the longitudes' representations modulo 360 names the same box; the case
+    // 170, −340 was found by the fuzzer (fuzz/regressions) with a negative width.
+    let grid = common::grid(common::span(-10.0, 10.0, 2.0), common::span(0.0, 358.0, 2.0));
+    let reference = BBox::new(170.0, -10.0, 20.0, 10.0).unwrap();
+    for (west, east) in [(170.0, -340.0), (-190.0, 20.0), (170.0, 380.0 - 360.0), (-190.0, -340.0)]
+    {
+        let b = BBox::new(west, -10.0, east, 10.0).unwrap();
+        assert_eq!(b.width(), 210.0, "{west}, {east}");
+        for i in 0..grid.n_lon() {
+            assert_eq!(
+                grid.cell_in_box(5, i, &b),
+                grid.cell_in_box(5, i, &reference),
+                "{west}, {east}: column {i}"
+            );
+        }
+    }
+    assert_eq!(BBox::new(10.0, 0.0, 10.0, 1.0).unwrap().width(), 0.0);
+    assert_eq!(BBox::new(-180.0, 0.0, 180.0, 1.0).unwrap().width(), 360.0);
+    assert_eq!(BBox::new(170.0, 0.0, -170.0, 1.0).unwrap().width(), 20.0);
+}
