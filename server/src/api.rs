@@ -272,7 +272,7 @@ pub async fn list_datasets(
 
 /// One dataset: grid, levels, times, recognised variables and possible diagnostics.
 #[utoipa::path(get, path = "/v1/datasets/{name}", tag = "datasets",
-    params(("name" = String, Path, description = "The dataset's name")),
+    params(("name" = String, Path, description = "The dataset's name, as configured", example = "demo")),
     responses(
         (status = 200, description = "The dataset document", body = DatasetDoc),
         (status = 304, description = "Unchanged since the tag sent in If-None-Match"),
@@ -294,7 +294,7 @@ pub async fn get_dataset(
 /// Box-mean profile of every adjacent layer: the same document as `shearbox profile`.
 #[utoipa::path(get, path = "/v1/datasets/{name}/profile", tag = "queries",
     params(
-        ("name" = String, Path, description = "The dataset's name"),
+        ("name" = String, Path, description = "The dataset's name, as configured", example = "demo"),
         ("bbox" = String, Query, description = "W,S,E,N in degrees (GeoJSON order); W > E crosses the antimeridian", example = "-30,42,-10,56"),
         ("time" = Option<String>, Query, description = "ISO 8601 time or `latest` (the default)")),
     responses(
@@ -317,7 +317,7 @@ pub async fn profile(
 /// One deep layer between two levels, optionally with its values on the grid.
 #[utoipa::path(get, path = "/v1/datasets/{name}/layer", tag = "queries",
     params(
-        ("name" = String, Path, description = "The dataset's name"),
+        ("name" = String, Path, description = "The dataset's name, as configured", example = "demo"),
         ("bottom" = f64, Query, description = "Bottom level, hPa (a level of the dataset)", example = 1000),
         ("top" = f64, Query, description = "Top level, hPa (a level of the dataset)", example = 500),
         ("bbox" = String, Query, description = "W,S,E,N in degrees (GeoJSON order); W > E crosses the antimeridian", example = "-30,42,-10,56"),
