@@ -22,7 +22,10 @@ use clap::Args;
 use shearbox_cf::output::{DiagnosticsLayout, Provenance};
 use shearbox_cf::write::{OutputFile, Writer};
 use shearbox_cf::{CfError, Dataset, VarOverrides};
-use shearbox_core::{Config, Fields, Layer, MaskCounts, MaskReason, box_profile, compute};
+use shearbox_core::{
+    Config, Diagnostics, Fields, Layer, MaskCounts, MaskReason, Parallelism, box_profile,
+    compute_into,
+};
 use shearbox_server::wire::ProfileDoc;
 
 use self::inputs::{Shard, Step};
@@ -464,6 +467,7 @@ fn pipeline(
             Ok(())
         });
         let computed = (|| -> Result<()> {
+            let mut diag = Diagnostics::default();
             for (step, read) in in_rx {
                 if staging::interrupted() {
                     return Err(Interrupted.into());
@@ -483,7 +487,8 @@ fn pipeline(
                     }
                 };
                 totals.bytes_in += decoded_bytes(&fields);
-                let diag = compute(&fields, layers, cfg);
+                // One set of output arrays for the whole run: no fresh pages to fault in per step.
+                compute_into(&mut diag, &fields, layers, cfg, Parallelism::Rayon);
                 for l in &diag.layers {
                     for &code in &l.mask {
                         totals.counts.add(MaskReason::from_u8(code));
@@ -498,7 +503,6 @@ fn pipeline(
                 }
                 drop(fields);
                 let values = layout.step_values(&diag);
-                drop(diag);
                 let out =
                     StepOutput { time_value: layout.time_value(step.instant), values, profiles };
                 if out_tx.send(out).is_err() {
