@@ -167,6 +167,10 @@ fn main() {
             "read the inputs and write outputs of the same shape and compression, no computation (I/O ceiling)",
             read_write,
         ),
+        (
+            "the same through the netCDF library's writer (compression on one thread)",
+            read_write_library,
+        ),
         ("shearbox compute, output uncompressed (--deflate 0)", plain),
         ("shearbox compute (deflate 1 + shuffle, the default)", compute),
     ];
