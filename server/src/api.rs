@@ -176,8 +176,12 @@ fn json_bytes(body: Bytes) -> Response {
     r
 }
 
+/// The JSON text of `doc`, in a buffer of its own length: answers are kept in the cache,
+/// which counts their length, and the serialiser's buffer grows by doubling.
 fn to_json<T: Serialize>(doc: &T) -> Result<Bytes, ApiError> {
-    serde_json::to_vec(doc).map(Bytes::from).map_err(ApiError::internal)
+    let mut text = serde_json::to_vec(doc).map_err(ApiError::internal)?;
+    text.shrink_to_fit();
+    Ok(Bytes::from(text))
 }
 
 /// Liveness: the process answers.
