@@ -34,6 +34,8 @@ examples="${SHEARBOX_CONTRACT_EXAMPLES:-100}"
 seconds="${SHEARBOX_CONTRACT_SECONDS:-45}"
 start=$(date +%s)
 status=0
+# From the scratch folder, where schemathesis leaves its .schemathesis/ cache.
+cd "$work"
 "$service_py" -m schemathesis.cli run "$base/openapi.json" \
     --checks not_a_server_error,status_code_conformance,content_type_conformance,response_headers_conformance,response_schema_conformance \
     --phases examples,coverage,fuzzing \
