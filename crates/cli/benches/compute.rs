@@ -65,18 +65,7 @@ fn main() {
         decoded = 0;
         for t in 0..steps {
             let f = ds.read_fields(t, None).unwrap();
-            let n3 = [f.geopotential_height(), f.temperature(), f.specific_humidity()]
-                .iter()
-                .flatten()
-                .map(|a| a.len())
-                .sum::<usize>()
-                + f.wind().map_or(0, |(u, v)| u.len() + v.len());
-            let n2 = [f.surface_pressure(), f.surface_height()]
-                .iter()
-                .flatten()
-                .map(|a| a.len())
-                .sum::<usize>();
-            decoded += (n3 + n2) * 4;
+            decoded += f.n_values() * std::mem::size_of::<f32>();
         }
     });
     let out_dir = root().join("target/bench");

@@ -180,6 +180,20 @@ impl Fields {
         self.zs.as_ref().map(|a| a.view())
     }
 
+    /// The number of stored values of every field (what one time step holds in memory, at
+    /// four bytes each).
+    pub fn n_values(&self) -> usize {
+        let volumes = [self.geopotential_height(), self.temperature(), self.specific_humidity()]
+            .into_iter()
+            .flatten()
+            .map(|a| a.len())
+            .sum::<usize>();
+        let wind = self.wind().map_or(0, |(u, v)| u.len() + v.len());
+        let surfaces =
+            [self.surface_pressure(), self.surface_height()].into_iter().flatten().map(|a| a.len());
+        volumes + wind + surfaces.sum::<usize>()
+    }
+
     /// The same fields on the block `sel` of the grid (for example a box with its halo).
     pub fn subset(&self, sel: &Selection) -> Fields {
         let cols: Vec<usize> = sel.col_indices().collect();

@@ -258,3 +258,20 @@ fn wind_direction_follows_the_meteorological_convention() {
         Turning::Backing
     );
 }
+
+#[test]
+fn a_step_counts_the_values_of_every_field_it_holds() {
+    let grid = common::grid(common::span(30.0, 40.0, 2.0), common::span(0.0, 10.0, 2.0));
+    let levels = common::levels_hpa(&[1000.0, 500.0]);
+    let z = common::field3(&grid, &levels, |p, _, _| if p > 7e4 { 100.0 } else { 5600.0 });
+    let (n_lat, n_lon) = (grid.n_lat(), grid.n_lon());
+    let ps = Array2::from_elem((n_lat, n_lon), 101_300.0f32);
+    let fields = FieldsBuilder::new(grid, levels)
+        .geopotential_height(z.clone())
+        .wind(z.clone(), z)
+        .surface_pressure(ps)
+        .build()
+        .unwrap();
+    // Three volumes (z, u, v) of 2 levels and one surface field.
+    assert_eq!(fields.n_values(), 3 * 2 * n_lat * n_lon + n_lat * n_lon);
+}

@@ -179,18 +179,6 @@ fn layers_for(spec: &str, ds: &Dataset) -> Result<Vec<Layer>> {
     Ok(out)
 }
 
-fn decoded_bytes(f: &Fields) -> usize {
-    let n3 = [f.geopotential_height(), f.temperature(), f.specific_humidity()]
-        .iter()
-        .flatten()
-        .map(|a| a.len())
-        .sum::<usize>()
-        + f.wind().map_or(0, |(u, v)| u.len() + v.len());
-    let n2 =
-        [f.surface_pressure(), f.surface_height()].iter().flatten().map(|a| a.len()).sum::<usize>();
-    (n3 + n2) * std::mem::size_of::<f32>()
-}
-
 /// One step on its way from the kernel to the writer.
 struct StepOutput {
     time_value: f64,
@@ -486,7 +474,7 @@ fn pipeline(
                         )));
                     }
                 };
-                totals.bytes_in += decoded_bytes(&fields);
+                totals.bytes_in += fields.n_values() * std::mem::size_of::<f32>();
                 // One set of output arrays for the whole run: no fresh pages to fault in per step.
                 compute_into(&mut diag, &fields, layers, cfg, Parallelism::Rayon);
                 for l in &diag.layers {
