@@ -50,3 +50,29 @@ ensure_udunits() {
         apt_install libudunits2-dev
     fi
 }
+
+# ensure_pinned_venv VENV REQUIREMENTS: a Python virtual environment at VENV holding exactly the
+# pins (name==version) of REQUIREMENTS; pip is not called when they are installed. Sets $py.
+ensure_pinned_venv() {
+    local venv="$1" reqs="$2"
+    py="$venv/bin/python"
+    [ -x "$py" ] || "${PYTHON:-python3}" -m venv "$venv"
+    if ! "$py" - "$reqs" <<'PY'
+import sys
+from importlib.metadata import PackageNotFoundError, version
+
+for line in open(sys.argv[1], encoding="utf-8"):
+    line = line.split("#", 1)[0].strip()
+    if not line:
+        continue
+    name, pinned = line.split("==")
+    try:
+        if version(name) != pinned:
+            sys.exit(1)
+    except PackageNotFoundError:
+        sys.exit(1)
+PY
+    then
+        "$venv/bin/pip" install --quiet --disable-pip-version-check -r "$reqs"
+    fi
+}

@@ -38,24 +38,7 @@ ensure_service_venv() {
     root="$(cd "$(dirname "${BASH_SOURCE[0]}")/../.." && pwd)"
     reqs="$root/tests/service/requirements.txt"
     venv="$root/target/service-venv"
-    service_py="$venv/bin/python"
-    [ -x "$service_py" ] || "${PYTHON:-python3}" -m venv "$venv"
-    if ! "$service_py" - "$reqs" <<'PY'
-import sys
-from importlib.metadata import PackageNotFoundError, version
-
-for line in open(sys.argv[1], encoding="utf-8"):
-    line = line.split("#", 1)[0].strip()
-    if not line:
-        continue
-    name, pinned = line.split("==")
-    try:
-        if version(name) != pinned:
-            sys.exit(1)
-    except PackageNotFoundError:
-        sys.exit(1)
-PY
-    then
-        "$venv/bin/pip" install --quiet --disable-pip-version-check -r "$reqs"
-    fi
+    . "$root/scripts/lib.sh"
+    ensure_pinned_venv "$venv" "$reqs"
+    service_py="$py"
 }
