@@ -76,3 +76,44 @@ PY
         "$venv/bin/pip" install --quiet --disable-pip-version-check -r "$reqs"
     fi
 }
+
+# Node.js (20 or newer) and npm, which run the browser test's driver (playwright-core).
+ensure_node() {
+    local major
+    major=$(node -p 'process.versions.node.split(".")[0]' 2>/dev/null || echo 0)
+    if [ "$major" -lt 20 ] || ! command -v npm >/dev/null 2>&1; then
+        echo "shearbox: installing nodejs and npm (for the browser test)" >&2
+        apt_install nodejs npm
+        major=$(node -p 'process.versions.node.split(".")[0]' 2>/dev/null || echo 0)
+        if [ "$major" -lt 20 ]; then
+            echo "shearbox: the browser test needs Node.js 20 or newer; this machine has $(node --version 2>/dev/null || echo none)" >&2
+            return 1
+        fi
+    fi
+}
+
+# Debian's Chromium, which the browser test drives headless, with a font for its text.
+ensure_chromium() {
+    local need=()
+    [ -x /usr/bin/chromium ] || need+=(chromium)
+    fc-list 2>/dev/null | grep -q . || need+=(fonts-dejavu-core)
+    if [ ${#need[@]} -gt 0 ]; then
+        echo "shearbox: installing ${need[*]} (for the browser test)" >&2
+        apt_install "${need[@]}"
+    fi
+}
+
+# ensure_playwright DIR: DIR/node_modules holds exactly the packages of DIR/package-lock.json
+# (`npm ci`, which downloads no browser: playwright-core ships none); npm is not called when
+# the installed playwright-core already has the locked version.
+ensure_playwright() {
+    local dir want have
+    dir="$(cd "$1" && pwd)"
+    ensure_node
+    want=$(node -p "require('$dir/package-lock.json').packages['node_modules/playwright-core'].version")
+    have=$(node -p "try { require('$dir/node_modules/playwright-core/package.json').version } catch (e) { '' }")
+    if [ "$want" != "$have" ]; then
+        echo "shearbox: installing playwright-core $want into $dir/node_modules" >&2
+        (cd "$dir" && npm ci --no-audit --no-fund --loglevel=error)
+    fi
+}
