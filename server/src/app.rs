@@ -86,6 +86,7 @@ pub fn app(state: AppState) -> Router {
         let _ = state.openapi.set(Bytes::from(json));
     }
     let mut router = router
+        .merge(crate::page::router())
         .fallback(not_found)
         .method_not_allowed_fallback(method_not_allowed)
         .layer(middleware::from_fn_with_state(state.clone(), authenticate))

@@ -25,6 +25,8 @@
 //!   it open past the request time limit, and none holds a place of the work gate.
 //! - Errors are typed ([`error::ApiError`]) and pick their status; a 5xx is logged, never
 //!   echoed.
+//! - A page at `/` ([`page`]), embedded in the binary, lets a person pick a dataset, time and
+//!   layer, drag a box on the layer map and read its profile, through the public routes only.
 
 pub mod api;
 pub mod app;
@@ -34,6 +36,7 @@ pub mod config;
 pub mod conn;
 pub mod error;
 pub mod metrics;
+pub mod page;
 pub mod query;
 pub mod state;
 pub mod wire;

@@ -260,6 +260,8 @@ pub struct TimesDoc {
     pub calendar: String,
     /// CF time units, as in the file.
     pub units: Option<String>,
+    /// Every time step in file order, ISO 8601: the values `time=` accepts.
+    pub values: Vec<String>,
 }
 
 /// The dataset document: what was recognised and what can be computed.
@@ -323,6 +325,7 @@ impl DatasetDoc {
                 last: times.last().cloned(),
                 calendar: ds.calendar().cf_name().to_string(),
                 units: ds.time_units().map(str::to_string),
+                values: times.to_vec(),
             },
             variables: ds.recognised().iter().map(variable_doc).collect(),
             diagnostics: ds.diagnostics().iter().map(diagnostic_doc).collect(),

@@ -1,0 +1,209 @@
+//! The page at `/` and its assets, through `oneshot`: types, caching, nothing fetched from
+//! outside, and only documented routes used. The page itself runs in a browser in
+//! `tests/browser/`.
+
+use axum::Router;
+use axum::body::{Body, Bytes};
+use axum::http::{HeaderMap, Request, StatusCode, header};
+use http_body_util::BodyExt;
+use serde_json::Value;
+use shearbox_server::app::app;
+use shearbox_server::state::AppState;
+use tower::ServiceExt;
+
+mod common;
+
+struct Answer {
+    status: StatusCode,
+    headers: HeaderMap,
+    body: Bytes,
+}
+
+impl Answer {
+    fn text(&self) -> &str {
+        std::str::from_utf8(&self.body).expect("UTF-8")
+    }
+
+    fn header(&self, name: header::HeaderName) -> &str {
+        self.headers.get(&name).and_then(|v| v.to_str().ok()).unwrap_or("")
+    }
+}
+
+fn service(extra: &str) -> Router {
+    app(AppState::new(common::config(extra)))
+}
+
+async fn get_with(router: &Router, uri: &str, headers: &[(header::HeaderName, &str)]) -> Answer {
+    let mut request = Request::get(uri);
+    for (k, v) in headers {
+        request = request.header(k, *v);
+    }
+    let response =
+        router.clone().oneshot(request.body(Body::empty()).unwrap()).await.expect("an answer");
+    let status = response.status();
+    let headers = response.headers().clone();
+    let body = response.into_body().collect().await.expect("a body").to_bytes();
+    Answer { status, headers, body }
+}
+
+async fn get(router: &Router, uri: &str) -> Answer {
+    get_with(router, uri, &[]).await
+}
+
+/// The values of `attr="…"` in `html`.
+fn attribute_values<'a>(html: &'a str, attr: &str) -> Vec<&'a str> {
+    let needle = format!(" {attr}=\"");
+    html.match_indices(&needle)
+        .filter_map(|(i, _)| {
+            let rest = &html[i + needle.len()..];
+            rest.find('"').map(|end| &rest[..end])
+        })
+        .collect()
+}
+
+#[tokio::test]
+async fn the_page_and_its_assets_are_served_with_their_types() {
+    let router = service("");
+    let page = get(&router, "/").await;
+    assert_eq!(page.status, StatusCode::OK);
+    assert_eq!(page.header(header::CONTENT_TYPE), "text/html; charset=utf-8");
+    assert_eq!(page.header(header::CACHE_CONTROL), "no-cache");
+    assert!(page.text().starts_with("<!doctype html>"), "{}", &page.text()[..40]);
+
+    let scripts = attribute_values(page.text(), "src");
+    let sheets = attribute_values(page.text(), "href")
+        .into_iter()
+        .filter(|h| h.ends_with(".css"))
+        .collect::<Vec<_>>();
+    assert_eq!(scripts, ["/assets/app.js"], "the page loads its one script");
+    assert_eq!(sheets, ["/assets/style.css"], "the page loads its one style sheet");
+    for (path, kind) in [(scripts[0], "text/javascript"), (sheets[0], "text/css")] {
+        let asset = get(&router, path).await;
+        assert_eq!(asset.status, StatusCode::OK, "{path}");
+        assert_eq!(asset.header(header::CONTENT_TYPE), format!("{kind}; charset=utf-8"), "{path}");
+        assert_eq!(asset.header(header::CACHE_CONTROL), "no-cache", "{path}");
+        assert_eq!(asset.header(header::X_CONTENT_TYPE_OPTIONS), "nosniff", "{path}");
+        assert!(!asset.body.is_empty(), "{path}");
+    }
+    // HEAD answers like GET, without a body.
+    let head = router
+        .clone()
+        .oneshot(Request::head("/").body(Body::empty()).unwrap())
+        .await
+        .expect("an answer");
+    assert_eq!(head.status(), StatusCode::OK);
+    assert_eq!(head.headers()[header::CONTENT_TYPE], "text/html; charset=utf-8");
+}
+
+#[tokio::test]
+async fn nothing_is_fetched_from_outside() {
+    let router = service("");
+    for path in ["/", "/assets/app.js", "/assets/style.css"] {
+        let asset = get(&router, path).await;
+        let lower = asset.text().to_ascii_lowercase();
+        for outside in ["http://", "https://", "src=\"//", "href=\"//", "url(//", "@import"] {
+            assert!(!lower.contains(outside), "{path} holds {outside:?}");
+        }
+        // The browser enforces it too: only this origin, for everything.
+        let policy = asset.header(header::CONTENT_SECURITY_POLICY);
+        assert!(policy.starts_with("default-src 'self';"), "{path}: {policy}");
+        assert!(policy.contains("connect-src 'self'"), "{path}: {policy}");
+        assert!(!policy.contains('*') && !policy.contains("http"), "{path}: {policy}");
+    }
+}
+
+#[tokio::test]
+async fn a_tagged_asset_is_not_sent_twice() {
+    let router = service("");
+    let mut tags = std::collections::BTreeSet::new();
+    for path in ["/", "/assets/app.js", "/assets/style.css"] {
+        let first = get(&router, path).await;
+        let tag = first.header(header::ETAG).to_string();
+        assert!(tag.starts_with('"') && tag.len() > 2, "{path}: strong tag {tag:?}");
+        let again = get_with(&router, path, &[(header::IF_NONE_MATCH, &tag)]).await;
+        assert_eq!(again.status, StatusCode::NOT_MODIFIED, "{path}");
+        assert!(again.body.is_empty(), "{path}");
+        let other = get_with(&router, path, &[(header::IF_NONE_MATCH, "\"other\"")]).await;
+        assert_eq!(other.status, StatusCode::OK, "{path}");
+        tags.insert(tag);
+    }
+    assert_eq!(tags.len(), 3, "each asset has its own tag: {tags:?}");
+}
+
+#[tokio::test]
+async fn the_page_is_open_while_tokens_guard_the_api() {
+    let router = service("tokens = [\"a-token-of-the-tests-0123\"]");
+    assert_eq!(get(&router, "/").await.status, StatusCode::OK);
+    assert_eq!(get(&router, "/assets/app.js").await.status, StatusCode::OK);
+    assert_eq!(get(&router, "/v1/datasets").await.status, StatusCode::UNAUTHORIZED);
+}
+
+/// The routes the script's strings name, with `${…}` path parts as `{name}`.
+fn routes_in_script(script: &str) -> Vec<String> {
+    let mut routes: Vec<String> = script
+        .match_indices("/v1/")
+        .filter(|(i, _)| script[..*i].ends_with(['"', '`']))
+        .map(|(i, _)| {
+            let rest = &script[i..];
+            let end = rest.find(['?', '`', '"', ' ']).unwrap_or(rest.len());
+            let mut route = String::new();
+            let mut parts = rest[..end].split("${");
+            route.push_str(parts.next().unwrap_or(""));
+            for part in parts {
+                let close = part.find('}').expect("a closed ${…}");
+                route.push_str("{name}");
+                route.push_str(&part[close + 1..]);
+            }
+            route
+        })
+        .filter(|r| r.len() > "/v1/".len())
+        .collect();
+    routes.sort();
+    routes.dedup();
+    routes
+}
+
+#[tokio::test]
+async fn the_page_uses_only_documented_routes() {
+    let router = service("");
+    let script = get(&router, "/assets/app.js").await;
+    let doc: Value = serde_json::from_slice(&get(&router, "/openapi.json").await.body).unwrap();
+    let paths = doc["paths"].as_object().expect("paths");
+    let used = routes_in_script(script.text());
+    for route in [
+        "/v1/datasets",
+        "/v1/datasets/{name}",
+        "/v1/datasets/{name}/profile",
+        "/v1/datasets/{name}/hodograph.svg",
+        "/v1/datasets/{name}/map.svg",
+    ] {
+        assert!(used.iter().any(|u| u == route), "the script requests {route}: {used:?}");
+    }
+    for route in &used {
+        assert!(paths.contains_key(route), "{route} is not in /openapi.json");
+    }
+    for path in ["/", "/assets/app.js", "/assets/style.css"] {
+        assert!(!paths.contains_key(path), "{path} is a page, not an API operation");
+    }
+}
+
+#[tokio::test]
+async fn the_dataset_document_lists_every_time_the_page_offers() {
+    let router = service("");
+    let doc: Value = serde_json::from_slice(&get(&router, "/v1/datasets/tidy").await.body).unwrap();
+    let times = &doc["times"];
+    let values: Vec<&str> =
+        times["values"].as_array().expect("values").iter().map(|v| v.as_str().unwrap()).collect();
+    // tidy_nc4.nc: three steps, 6-hourly from 2026-01-14T00:00:00Z (fixtures/src/catalogue.rs).
+    assert_eq!(values, ["2026-01-14T00:00:00Z", "2026-01-14T06:00:00Z", "2026-01-14T12:00:00Z"]);
+    assert_eq!(times["count"], values.len());
+    assert_eq!(times["first"], values[0]);
+    assert_eq!(times["last"], values[values.len() - 1]);
+    for t in values {
+        let uri = format!("/v1/datasets/tidy/profile?bbox=0,40,10,50&time={t}");
+        let answer = get(&router, &uri).await;
+        assert_eq!(answer.status, StatusCode::OK, "{uri}: {}", answer.text());
+        let profile: Value = serde_json::from_slice(&answer.body).unwrap();
+        assert_eq!(profile["time"], t, "{uri}");
+    }
+}

@@ -1,0 +1,166 @@
+// The page at `/` in headless Chromium, end to end: it loads, shows the caution and the layer
+// map, a box dragged with the mouse gives a profile table and a hodograph with one row and one
+// segment per layer of the profile the service answers for that box, and a failed request shows
+// the service's own message. Saves a screenshot.
+//
+//   node tests/browser/page.mjs BASE_URL OUT_DIR DATASET
+//
+// The expected numbers come from the service's JSON routes, fetched here independently of the
+// page; the drag's expected box comes from the pixel positions the mouse used and the geometry
+// the map declares (data-bbox and #plot-area, the pictures' agreed DOM contract).
+
+import { chromium } from "playwright-core";
+
+const [base, out, dataset] = process.argv.slice(2);
+if (!base || !out || !dataset) {
+  console.error("usage: node page.mjs BASE_URL OUT_DIR DATASET");
+  process.exit(2);
+}
+
+let passed = 0;
+const failures = [];
+
+/** One check: counted, and reported with what was seen when it fails. */
+function check(what, ok, seen) {
+  if (ok) {
+    passed += 1;
+  } else {
+    failures.push(`${what}: ${seen}`);
+    console.error(`FAIL ${what}: ${seen}`);
+  }
+}
+
+async function json(path) {
+  const response = await fetch(base + path);
+  return { status: response.status, body: await response.json() };
+}
+
+const doc = (await json(`/v1/datasets/${dataset}`)).body;
+
+const browser = await chromium.launch({
+  executablePath: process.env.SHEARBOX_CHROMIUM || "/usr/bin/chromium",
+  headless: true,
+});
+try {
+  const page = await browser.newPage({ viewport: { width: 1400, height: 1000 } });
+  page.setDefaultTimeout(30_000);
+  const consoleErrors = [];
+  const outside = [];
+  page.on("console", (m) => {
+    if (m.type() === "error") consoleErrors.push(m.text());
+  });
+  page.on("pageerror", (e) => consoleErrors.push(`uncaught: ${e.message}`));
+  page.on("request", (r) => {
+    if (!r.url().startsWith(`${base}/`)) outside.push(r.url());
+  });
+
+  await page.goto(`${base}/`);
+  const plot = page.locator("#map #plot-area");
+  await plot.waitFor();
+
+  // The caution, in the API's words.
+  const caution = page.locator("#caution");
+  check("the caution is visible", await caution.isVisible(), "hidden");
+  check("the caution is the dataset document's", (await caution.textContent()) === doc.caution,
+    await caution.textContent());
+
+  // The choices offer what the dataset document lists.
+  check("the dataset is chosen", (await page.locator("#dataset").inputValue()) === dataset,
+    await page.locator("#dataset").inputValue());
+  const times = await page.locator("#time option").count();
+  check("every time is offered", times === doc.times.values.length,
+    `${times} options for ${doc.times.values.length} times`);
+  const latest = doc.times.values[doc.times.values.length - 1];
+  check("the latest time is chosen", (await page.locator("#time").inputValue()) === latest,
+    await page.locator("#time").inputValue());
+  const bottoms = await page.locator("#bottom option").count();
+  check("every level but the top can be a layer's bottom",
+    bottoms === doc.levels_hpa.length - 1, `${bottoms} for ${doc.levels_hpa.length} levels`);
+
+  // Drag a box across part of the plot frame.
+  const frame = await plot.boundingBox();
+  const extent = (await page.locator("#map svg").first().getAttribute("data-bbox"))
+    .split(",").map(Number);
+  const from = { x: frame.x + 0.35 * frame.width, y: frame.y + 0.3 * frame.height };
+  const to = { x: frame.x + 0.6 * frame.width, y: frame.y + 0.55 * frame.height };
+  await page.mouse.move(from.x, from.y);
+  await page.mouse.down();
+  await page.mouse.move(to.x, to.y, { steps: 8 });
+  const band = page.locator("#map .selection");
+  check("the rubber band follows the drag", await band.isVisible(), "no band while dragging");
+  await page.mouse.up();
+
+  const rows = page.locator("#layers tbody tr");
+  await rows.first().waitFor();
+  await page.locator("#results[aria-busy=false]").waitFor();
+  await page.locator("#hodograph .layer-segment").first().waitFor();
+
+  // The box the page asked for is where the mouse went, to a pixel and the 0.01° rounding.
+  const box = await Promise.all(
+    ["west", "south", "east", "north"].map((id) => page.locator(`#${id}`).inputValue()),
+  );
+  const [w, s, e, n] = extent;
+  const lon = (x) => w + ((x - frame.x) / frame.width) * (e - w);
+  const lat = (y) => n - ((y - frame.y) / frame.height) * (n - s);
+  const wrap = (v) => v - 360 * Math.floor((v + 180) / 360);
+  const expected = [wrap(lon(from.x)), lat(to.y), wrap(lon(to.x)), lat(from.y)];
+  const pixel = Math.max((e - w) / frame.width, (n - s) / frame.height);
+  const off = box.map((v, i) => Math.abs(Number(v) - expected[i]));
+  check("the box is where the mouse went", off.every((d) => d <= pixel + 0.01),
+    `fields ${box}, expected ${expected.map((v) => v.toFixed(3))} within ${pixel.toFixed(3)}`);
+
+  // The table and the hodograph against the profile the service answers for that box.
+  const time = await page.locator("#time").inputValue();
+  const profile = await json(
+    `/v1/datasets/${dataset}/profile?bbox=${box.join(",")}&time=${encodeURIComponent(time)}`,
+  );
+  check("the profile of the box answers", profile.status === 200, JSON.stringify(profile.body));
+  const layers = profile.body.layers;
+  check("the profile has layers", layers.length > 0, layers.length);
+  const rowCount = await rows.count();
+  check("one table row per layer", rowCount === layers.length,
+    `${rowCount} rows, ${layers.length} layers`);
+  const levelRows = await page.locator("#levels tbody tr").count();
+  check("one table row per level", levelRows === profile.body.levels.length,
+    `${levelRows} rows, ${profile.body.levels.length} levels`);
+  const firstRow = await rows.first().locator("th, td").allTextContents();
+  const l0 = layers[0];
+  check("the first row is the bottom layer",
+    firstRow[0] === `${l0.bottom_hpa}\u2013${l0.top_hpa}`, firstRow[0]);
+  check("the first row's thickness is the profile's",
+    l0.thickness_m !== null && firstRow[1] === l0.thickness_m.toFixed(1),
+    `${firstRow[1]} vs ${l0.thickness_m}`);
+  const segments = await page.locator("#hodograph .layer-segment").count();
+  check("one hodograph segment per layer", segments === layers.length,
+    `${segments} segments, ${layers.length} layers`);
+  const points = await page.locator("#hodograph circle.level").count();
+  check("one hodograph point per level", points === profile.body.levels.length,
+    `${points} points, ${profile.body.levels.length} levels`);
+
+  await page.screenshot({ path: `${out}/page.png`, fullPage: true });
+
+  check("no console errors", consoleErrors.length === 0, consoleErrors.join(" | "));
+  check("nothing requested from outside", outside.length === 0, outside.join(" "));
+
+  // A box with no cells, typed with the keyboard: the service's message is shown.
+  const below = Math.max(-90, doc.grid.lat_min - 10);
+  await page.locator("#south").fill(String(below - 5));
+  await page.locator("#north").fill(String(below));
+  await page.locator("#north").press("Enter");
+  const error = page.locator("#error");
+  await error.waitFor();
+  const badBox = [box[0], below - 5, box[2], below].join(",");
+  const refused = await json(
+    `/v1/datasets/${dataset}/profile?bbox=${badBox}&time=${encodeURIComponent(time)}`,
+  );
+  const shown = await error.textContent();
+  check("a box with no cells is refused", refused.status === 400, refused.status);
+  check("the page shows the service's message", shown.includes(refused.body.error.message),
+    `${shown} lacks ${refused.body.error.message}`);
+  await page.screenshot({ path: `${out}/page-error.png` });
+} finally {
+  await browser.close();
+}
+
+console.log(`browser: ${passed} passed, ${failures.length} failed`);
+process.exit(failures.length === 0 ? 0 : 1);

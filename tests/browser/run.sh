@@ -1,0 +1,40 @@
+#!/usr/bin/env bash
+# End-to-end test of the page at `/` in headless Chromium (Debian's chromium, driven by
+# playwright-core, pinned in package-lock.json): `shearbox serve` on the demo dataset on a
+# free loopback port, then page.mjs loads the page, drags a box and checks the profile table and
+# the hodograph against the service's own answers. Installs chromium, Node.js and
+# playwright-core when missing. The screenshots are left in target/browser/.
+#
+#   tests/browser/run.sh target/release/shearbox target/release/shearbox-fixtures
+set -euo pipefail
+here="$(cd "$(dirname "$0")" && pwd)"
+root="$(cd "$here/../.." && pwd)"
+bin="$(realpath "${1:?usage: run.sh PATH/TO/shearbox PATH/TO/shearbox-fixtures}")"
+fixtures_bin="$(realpath "${2:?usage: run.sh PATH/TO/shearbox PATH/TO/shearbox-fixtures}")"
+work="$root/target/browser"
+data="$work/data"
+mkdir -p "$work" "$data"
+rm -f "$work"/*.png "$work"/serve.log
+
+. "$root/scripts/lib.sh"
+ensure_chromium
+ensure_playwright "$here"
+. "$root/tests/service/lib.sh"
+trap 'stop_server || true' EXIT
+
+# The demo dataset (invented data), made by the fixture generator once and reused.
+[ -f "$data/kestrel_gap.nc" ] || "$fixtures_bin" demo "$data" >/dev/null
+cat >"$work/serve.toml" <<TOML
+[datasets]
+demo = "$data/kestrel_gap.nc"
+TOML
+start_server "$work/serve.toml"
+
+start=$(date +%s)
+status=0
+node "$here/page.mjs" "$base" "$work" demo || status=$?
+stop_server || { echo "browser: the service did not stop cleanly" >&2; status=1; }
+fivexx=$(grep -c 'status=5[0-9][0-9]' "$work/serve.log" || true)
+[ "$fivexx" -eq 0 ] || { echo "browser: $fivexx answers were 5xx (log: $work/serve.log)" >&2; status=1; }
+echo "browser: $(( $(date +%s) - start ))s; screenshots in $work (page.png, page-error.png)"
+exit "$status"
