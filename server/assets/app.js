@@ -95,11 +95,16 @@ function setError(kind, what, error) {
   else errors.delete(kind);
   const box = $("error");
   box.replaceChildren();
+  const shown = new Set();
   for (const { what: w, error: e } of errors.values()) {
+    // Two requests refused for one reason (a box's profile and hodograph) show it once.
+    const message = e.message || String(e);
+    if (shown.has(message)) continue;
+    shown.add(message);
     const p = document.createElement("p");
     const strong = document.createElement("strong");
     strong.textContent = `${w} failed: `;
-    p.append(strong, e.message || String(e));
+    p.append(strong, message);
     if (e.code) {
       const code = document.createElement("span");
       code.className = "code";

@@ -41,8 +41,8 @@ const browser = await chromium.launch({
   executablePath: process.env.SHEARBOX_CHROMIUM || "/usr/bin/chromium",
   headless: true,
 });
+const page = await browser.newPage({ viewport: { width: 1400, height: 1000 } });
 try {
-  const page = await browser.newPage({ viewport: { width: 1400, height: 1000 } });
   page.setDefaultTimeout(30_000);
   const consoleErrors = [];
   const outside = [];
@@ -158,6 +158,10 @@ try {
   check("the page shows the service's message", shown.includes(refused.body.error.message),
     `${shown} lacks ${refused.body.error.message}`);
   await page.screenshot({ path: `${out}/page-error.png` });
+} catch (e) {
+  // A step that timed out or threw: what the page showed then is the artefact.
+  check("every step completes", false, e.message);
+  await page.screenshot({ path: `${out}/page-failed.png`, fullPage: true }).catch(() => {});
 } finally {
   await browser.close();
 }

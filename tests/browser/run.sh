@@ -36,5 +36,5 @@ node "$here/page.mjs" "$base" "$work" demo || status=$?
 stop_server || { echo "browser: the service did not stop cleanly" >&2; status=1; }
 fivexx=$(grep -c 'status=5[0-9][0-9]' "$work/serve.log" || true)
 [ "$fivexx" -eq 0 ] || { echo "browser: $fivexx answers were 5xx (log: $work/serve.log)" >&2; status=1; }
-echo "browser: $(( $(date +%s) - start ))s; screenshots in $work (page.png, page-error.png)"
+echo "browser: $(( $(date +%s) - start ))s; screenshots: $(cd "$work" && ls -- *.png | tr "\n" " ")(in $work)"
 exit "$status"
