@@ -6,6 +6,10 @@
 // needs the map's geometry in the DOM, and a shadow root keeps the picture's ids and style
 // rules from meeting the page's or the other picture's.
 
+import {
+  clampToPlot, geometry, insidePlot, requestBox, toLonLat, toPoint, unwrapBox,
+} from "/assets/geo.js";
+
 const $ = (id) => document.getElementById(id);
 
 /** What the page shows now. */
@@ -327,15 +331,10 @@ function clearPicture(host) {
 function mapGeometry(svg) {
   const extent = (svg.getAttribute("data-bbox") || "").split(",").map(Number);
   const frame = svg.querySelector("#plot-area");
-  const plot = frame && ["x", "y", "width", "height"].map((k) => Number(frame.getAttribute(k)));
-  if (extent.length !== 4 || !extent.every(Number.isFinite) || !(extent[0] < extent[2]) ||
-      !(extent[1] < extent[3]) || !plot || !plot.every(Number.isFinite) ||
-      !(plot[2] > 0) || !(plot[3] > 0)) {
-    throw new Failure("the map does not declare its extent and plot area", "bad_picture");
-  }
-  const [west, south, east, north] = extent;
-  const [x, y, width, height] = plot;
-  return { west, south, east, north, x, y, width, height };
+  const plot = frame ? ["x", "y", "width", "height"].map((k) => Number(frame.getAttribute(k))) : [];
+  const m = geometry(extent, plot);
+  if (!m) throw new Failure("the map does not declare its extent and plot area", "bad_picture");
+  return m;
 }
 
 async function loadMap() {
@@ -349,10 +348,10 @@ async function loadMap() {
   const url = `/v1/datasets/${encodeURIComponent(name)}/map.svg?bottom=${bottom}&top=${top}${timeQuery()}`;
   const shown = await task("map", "Drawing the layer map\u2026", "Drawing the layer map", async () => {
     const svg = parseSvg(await get("map", url, "text"), "layer map");
-    const geometry = mapGeometry(svg);
+    const frame = mapGeometry(svg);
     svg.classList.add("map");
     showPicture(host, svg);
-    state.map = { svg, ...geometry };
+    state.map = { svg, ...frame };
     svg.addEventListener("pointerdown", dragStart);
     svg.addEventListener("pointermove", dragMove);
     svg.addEventListener("pointerup", dragEnd);
@@ -377,63 +376,6 @@ function userPoint(event) {
   return { x: p.x, y: p.y };
 }
 
-function insidePlot({ x, y }) {
-  const m = state.map;
-  return x >= m.x && x <= m.x + m.width && y >= m.y && y <= m.y + m.height;
-}
-
-function clampToPlot({ x, y }) {
-  const m = state.map;
-  return {
-    x: Math.min(Math.max(x, m.x), m.x + m.width),
-    y: Math.min(Math.max(y, m.y), m.y + m.height),
-  };
-}
-
-/** Longitude (unwrapped, as the map's extent) and latitude of a point in the plot frame. */
-function toLonLat({ x, y }) {
-  const m = state.map;
-  return {
-    lon: m.west + ((x - m.x) / m.width) * (m.east - m.west),
-    lat: m.north - ((y - m.y) / m.height) * (m.north - m.south),
-  };
-}
-
-function toPoint(lon, lat) {
-  const m = state.map;
-  return {
-    x: m.x + ((lon - m.west) / (m.east - m.west)) * m.width,
-    y: m.y + ((m.north - lat) / (m.north - m.south)) * m.height,
-  };
-}
-
-const round2 = (v) => Math.round(v * 100) / 100 + 0;
-
-/** Longitude in [-180, 180). */
-const wrapLon = (lon) => lon - 360 * Math.floor((lon + 180) / 360);
-
-/**
- * The box to send for an unwrapped box (west < east): longitudes back in [-180, 180], so a
- * box across the antimeridian has west > east; an east edge on the antimeridian stays 180.
- */
-function requestBox(west, south, east, north) {
-  if (east - west >= 360) return [-180, round2(south), 180, round2(north)];
-  const w = round2(wrapLon(west));
-  let e = round2(wrapLon(east));
-  if (e === -180 && east > west) e = 180;
-  return [w === 180 ? -180 : w, round2(south), e, round2(north)];
-}
-
-/** The box's west and east edges unwrapped to overlap the map's extent the most. */
-function unwrapBox([w, , e]) {
-  const m = state.map;
-  const width = e - w >= 360 ? 360 : (((e - w) % 360) + 360) % 360;
-  const first = m.west + ((((w - m.west) % 360) + 360) % 360);
-  const overlap = (a) => Math.min(a + width, m.east) - Math.max(a, m.west);
-  const west = overlap(first - 360) > overlap(first) ? first - 360 : first;
-  return [west, west + width];
-}
-
 /** The rubber band: the box being dragged, or else the chosen box, clipped to the plot. */
 function drawBox() {
   const m = state.map;
@@ -444,9 +386,9 @@ function drawBox() {
     a = state.drag.start;
     b = state.drag.now;
   } else if (state.bbox) {
-    const [west, east] = unwrapBox(state.bbox);
-    a = clampToPlot(toPoint(west, state.bbox[3]));
-    b = clampToPlot(toPoint(east, state.bbox[1]));
+    const [west, east] = unwrapBox(m, state.bbox);
+    a = clampToPlot(m, toPoint(m, west, state.bbox[3]));
+    b = clampToPlot(m, toPoint(m, east, state.bbox[1]));
   }
   let band = m.svg.querySelector(":scope > rect.selection");
   if (!a || Math.abs(a.x - b.x) === 0 || Math.abs(a.y - b.y) === 0) {
@@ -467,7 +409,7 @@ function drawBox() {
 function dragStart(event) {
   if (event.button !== 0 || !state.map) return;
   const p = userPoint(event);
-  if (!p || !insidePlot(p)) return;
+  if (!p || !insidePlot(state.map, p)) return;
   event.preventDefault();
   state.map.svg.setPointerCapture(event.pointerId);
   state.drag = { start: p, now: p, clientX: event.clientX, clientY: event.clientY };
@@ -478,7 +420,7 @@ function dragMove(event) {
   if (!state.drag) return;
   const p = userPoint(event);
   if (!p) return;
-  state.drag.now = clampToPlot(p);
+  state.drag.now = clampToPlot(state.map, p);
   drawBox();
 }
 
@@ -486,15 +428,15 @@ function dragEnd(event) {
   const drag = state.drag;
   if (!drag) return;
   const p = userPoint(event);
-  if (p) drag.now = clampToPlot(p);
+  if (p) drag.now = clampToPlot(state.map, p);
   state.drag = null;
   // A click, or a drag of a few pixels, keeps the box there was.
   if (Math.hypot(event.clientX - drag.clientX, event.clientY - drag.clientY) < 4) {
     drawBox();
     return;
   }
-  const a = toLonLat(drag.start);
-  const b = toLonLat(drag.now);
+  const a = toLonLat(state.map, drag.start);
+  const b = toLonLat(state.map, drag.now);
   setBox(requestBox(Math.min(a.lon, b.lon), Math.min(a.lat, b.lat),
     Math.max(a.lon, b.lon), Math.max(a.lat, b.lat)));
   loadProfile();

@@ -61,26 +61,60 @@ fn attribute_values<'a>(html: &'a str, attr: &str) -> Vec<&'a str> {
         .collect()
 }
 
+/// The paths of `from "…"` in a script's imports.
+fn imports(script: &str) -> Vec<&str> {
+    script
+        .match_indices(" from \"")
+        .filter_map(|(i, m)| {
+            let rest = &script[i + m.len()..];
+            rest.find('"').map(|end| &rest[..end])
+        })
+        .collect()
+}
+
+/// Every file the page loads, found by following it from `/`: its path and `Content-Type`.
+async fn page_files(router: &Router) -> Vec<(String, String)> {
+    let page = get(router, "/").await;
+    let mut files = vec![("/".to_string(), page.header(header::CONTENT_TYPE).to_string())];
+    let mut scripts: Vec<String> =
+        attribute_values(page.text(), "src").into_iter().map(str::to_string).collect();
+    let sheets = attribute_values(page.text(), "href").into_iter().filter(|h| h.ends_with(".css"));
+    for sheet in sheets {
+        let css = get(router, sheet).await;
+        files.push((sheet.to_string(), css.header(header::CONTENT_TYPE).to_string()));
+    }
+    while let Some(path) = scripts.pop() {
+        if files.iter().any(|(p, _)| *p == path) {
+            continue;
+        }
+        let script = get(router, &path).await;
+        scripts.extend(imports(script.text()).into_iter().map(str::to_string));
+        files.push((path, script.header(header::CONTENT_TYPE).to_string()));
+    }
+    files.sort();
+    files
+}
+
 #[tokio::test]
 async fn the_page_and_its_assets_are_served_with_their_types() {
     let router = service("");
     let page = get(&router, "/").await;
     assert_eq!(page.status, StatusCode::OK);
-    assert_eq!(page.header(header::CONTENT_TYPE), "text/html; charset=utf-8");
-    assert_eq!(page.header(header::CACHE_CONTROL), "no-cache");
     assert!(page.text().starts_with("<!doctype html>"), "{}", &page.text()[..40]);
-
-    let scripts = attribute_values(page.text(), "src");
-    let sheets = attribute_values(page.text(), "href")
-        .into_iter()
-        .filter(|h| h.ends_with(".css"))
-        .collect::<Vec<_>>();
-    assert_eq!(scripts, ["/assets/app.js"], "the page loads its one script");
-    assert_eq!(sheets, ["/assets/style.css"], "the page loads its one style sheet");
-    for (path, kind) in [(scripts[0], "text/javascript"), (sheets[0], "text/css")] {
+    let files = page_files(&router).await;
+    let js = "text/javascript; charset=utf-8";
+    let want = [
+        ("/", "text/html; charset=utf-8"),
+        ("/assets/app.js", js),
+        ("/assets/geo.js", js),
+        ("/assets/style.css", "text/css; charset=utf-8"),
+    ];
+    let want: Vec<(String, String)> =
+        want.iter().map(|(p, t)| (p.to_string(), t.to_string())).collect();
+    assert_eq!(files, want, "the files the page loads and their types");
+    for (path, _) in &files {
         let asset = get(&router, path).await;
         assert_eq!(asset.status, StatusCode::OK, "{path}");
-        assert_eq!(asset.header(header::CONTENT_TYPE), format!("{kind}; charset=utf-8"), "{path}");
         assert_eq!(asset.header(header::CACHE_CONTROL), "no-cache", "{path}");
         assert_eq!(asset.header(header::X_CONTENT_TYPE_OPTIONS), "nosniff", "{path}");
         assert!(!asset.body.is_empty(), "{path}");
@@ -98,8 +132,8 @@ async fn the_page_and_its_assets_are_served_with_their_types() {
 #[tokio::test]
 async fn nothing_is_fetched_from_outside() {
     let router = service("");
-    for path in ["/", "/assets/app.js", "/assets/style.css"] {
-        let asset = get(&router, path).await;
+    for (path, _) in page_files(&router).await {
+        let asset = get(&router, &path).await;
         let lower = asset.text().to_ascii_lowercase();
         for outside in ["http://", "https://", "src=\"//", "href=\"//", "url(//", "@import"] {
             assert!(!lower.contains(outside), "{path} holds {outside:?}");
@@ -116,7 +150,9 @@ async fn nothing_is_fetched_from_outside() {
 async fn a_tagged_asset_is_not_sent_twice() {
     let router = service("");
     let mut tags = std::collections::BTreeSet::new();
-    for path in ["/", "/assets/app.js", "/assets/style.css"] {
+    let files = page_files(&router).await;
+    for (path, _) in &files {
+        let path = path.as_str();
         let first = get(&router, path).await;
         let tag = first.header(header::ETAG).to_string();
         assert!(tag.starts_with('"') && tag.len() > 2, "{path}: strong tag {tag:?}");
@@ -127,7 +163,7 @@ async fn a_tagged_asset_is_not_sent_twice() {
         assert_eq!(other.status, StatusCode::OK, "{path}");
         tags.insert(tag);
     }
-    assert_eq!(tags.len(), 3, "each asset has its own tag: {tags:?}");
+    assert_eq!(tags.len(), files.len(), "each file has its own tag: {tags:?}");
 }
 
 #[tokio::test]
@@ -166,10 +202,12 @@ fn routes_in_script(script: &str) -> Vec<String> {
 #[tokio::test]
 async fn the_page_uses_only_documented_routes() {
     let router = service("");
-    let script = get(&router, "/assets/app.js").await;
+    let mut used = Vec::new();
+    for (path, _) in page_files(&router).await.iter().filter(|(p, _)| p.ends_with(".js")) {
+        used.extend(routes_in_script(get(&router, path).await.text()));
+    }
     let doc: Value = serde_json::from_slice(&get(&router, "/openapi.json").await.body).unwrap();
     let paths = doc["paths"].as_object().expect("paths");
-    let used = routes_in_script(script.text());
     for route in [
         "/v1/datasets",
         "/v1/datasets/{name}",
@@ -182,8 +220,8 @@ async fn the_page_uses_only_documented_routes() {
     for route in &used {
         assert!(paths.contains_key(route), "{route} is not in /openapi.json");
     }
-    for path in ["/", "/assets/app.js", "/assets/style.css"] {
-        assert!(!paths.contains_key(path), "{path} is a page, not an API operation");
+    for (path, _) in page_files(&router).await {
+        assert!(!paths.contains_key(&path), "{path} is a page, not an API operation");
     }
 }
 

@@ -1,9 +1,10 @@
 #!/usr/bin/env bash
-# End-to-end test of the page at `/` in headless Chromium (Debian's chromium, driven by
-# playwright-core, pinned in package-lock.json): `shearbox serve` on the demo dataset on a
-# free loopback port, then page.mjs loads the page, drags a box and checks the profile table and
-# the hodograph against the service's own answers. Installs chromium, Node.js and
-# playwright-core when missing. The screenshots are left in target/browser/.
+# The page's map geometry with Node's test runner (geo.test.mjs), then the page at `/` end to
+# end in headless Chromium (Debian's chromium, driven by playwright-core, pinned in
+# package-lock.json): `shearbox serve` on the demo dataset on a free loopback port, then
+# page.mjs loads the page, drags a box and checks the profile table and the hodograph against
+# the service's own answers. Installs chromium, Node.js and playwright-core when missing. The
+# screenshots are left in target/browser/.
 #
 #   tests/browser/run.sh target/release/shearbox target/release/shearbox-fixtures
 set -euo pipefail
@@ -19,6 +20,9 @@ rm -f "$work"/*.png "$work"/serve.log
 . "$root/scripts/lib.sh"
 ensure_chromium
 ensure_playwright "$here"
+# The map's geometry without a browser (Node's test runner; under a second).
+node --test "$here/geo.test.mjs"
+
 . "$root/tests/service/lib.sh"
 trap 'stop_server || true' EXIT
 
