@@ -52,7 +52,10 @@ impl<S: Send + Sync> FromRequestParts<S> for DatasetName {
 }
 
 /// The query parameters of a request, checked against the ones its route takes.
-fn params(raw: Option<&str>, allowed: &[&str]) -> Result<BTreeMap<String, String>, ApiError> {
+pub(crate) fn params(
+    raw: Option<&str>,
+    allowed: &[&str],
+) -> Result<BTreeMap<String, String>, ApiError> {
     let pairs: Vec<(String, String)> =
         serde_urlencoded::from_str(raw.unwrap_or("")).map_err(|e| {
             ApiError::bad("invalid_query", format!("the query string is malformed: {e}"))
@@ -75,7 +78,7 @@ fn params(raw: Option<&str>, allowed: &[&str]) -> Result<BTreeMap<String, String
     Ok(out)
 }
 
-fn parse_bbox(p: &BTreeMap<String, String>) -> Result<BBox, ApiError> {
+pub(crate) fn parse_bbox(p: &BTreeMap<String, String>) -> Result<BBox, ApiError> {
     let text = p.get("bbox").ok_or_else(|| {
         ApiError::bad(
             "missing_parameter",
@@ -85,14 +88,14 @@ fn parse_bbox(p: &BTreeMap<String, String>) -> Result<BBox, ApiError> {
     BBox::parse(text).map_err(ApiError::from_core)
 }
 
-fn parse_time(p: &BTreeMap<String, String>) -> Result<TimeSelector, ApiError> {
+pub(crate) fn parse_time(p: &BTreeMap<String, String>) -> Result<TimeSelector, ApiError> {
     match p.get("time") {
         None => Ok(TimeSelector::Latest),
         Some(t) => TimeSelector::parse(t).map_err(|e| ApiError::bad("invalid_time", e.to_string())),
     }
 }
 
-fn parse_hpa(p: &BTreeMap<String, String>, key: &str) -> Result<f64, ApiError> {
+pub(crate) fn parse_hpa(p: &BTreeMap<String, String>, key: &str) -> Result<f64, ApiError> {
     let text = p.get(key).ok_or_else(|| {
         ApiError::bad(
             "missing_parameter",
@@ -114,7 +117,7 @@ fn parse_grid(p: &BTreeMap<String, String>) -> Result<bool, ApiError> {
     }
 }
 
-fn parse_stride(p: &BTreeMap<String, String>) -> Result<usize, ApiError> {
+pub(crate) fn parse_stride(p: &BTreeMap<String, String>) -> Result<usize, ApiError> {
     let Some(text) = p.get("stride") else { return Ok(1) };
     match text.trim().parse::<usize>() {
         Ok(s) if s >= 1 => Ok(s),
@@ -128,14 +131,14 @@ fn parse_stride(p: &BTreeMap<String, String>) -> Result<usize, ApiError> {
 }
 
 /// A weak entity tag from a file fingerprint and the canonical form of what was asked.
-fn etag(file_tag: u64, canonical: &str) -> String {
+pub(crate) fn etag(file_tag: u64, canonical: &str) -> String {
     let mut h = Fnv::default();
     h.write(canonical.as_bytes());
     format!("W/\"{file_tag:016x}-{:016x}\"", h.finish())
 }
 
 /// Whether `If-None-Match` names `tag` (weak comparison, RFC 9110 §13.1.2).
-fn not_modified(headers: &HeaderMap, tag: &str) -> bool {
+pub(crate) fn not_modified(headers: &HeaderMap, tag: &str) -> bool {
     let strip = |t: &str| t.trim().trim_start_matches("W/").to_string();
     headers
         .get_all(header::IF_NONE_MATCH)
@@ -144,7 +147,7 @@ fn not_modified(headers: &HeaderMap, tag: &str) -> bool {
         .any(|v| v.split(',').any(|t| t.trim() == "*" || strip(t) == strip(tag)))
 }
 
-fn cache_headers(response: &mut Response, tag: &str, max_age: u64) {
+pub(crate) fn cache_headers(response: &mut Response, tag: &str, max_age: u64) {
     let headers = response.headers_mut();
     if let Ok(v) = HeaderValue::from_str(tag) {
         headers.insert(header::ETAG, v);
@@ -412,7 +415,16 @@ async fn box_query(
 }
 
 /// The inputs of a plan, from the cache or the file. Runs on a blocking thread.
-fn inputs(state: &AppState, loaded: &Loaded, plan: &Plan) -> Result<Arc<Fields>, ApiError> {
+pub(crate) fn inputs(
+    state: &AppState,
+    loaded: &Loaded,
+    plan: &Plan,
+) -> Result<Arc<Fields>, ApiError> {
+    let step_bytes = loaded.dataset.values_per_step().saturating_mul(4);
+    if step_bytes <= state.cache.capacity() / STEP_SHARE {
+        let step = whole_step(state, loaded, plan.time_idx)?;
+        return Ok(Arc::new(step.subset(&plan.block)));
+    }
     let key = CacheKey::Inputs {
         generation: loaded.generation,
         time_idx: plan.time_idx,
@@ -425,6 +437,42 @@ fn inputs(state: &AppState, loaded: &Loaded, plan: &Plan) -> Result<Arc<Fields>,
     }
     Metrics::add(&state.metrics.cache_misses, 1);
     let fields = query::read_inputs(&loaded.dataset, plan).map_err(|e| read_failure(loaded, e))?;
+    let fields = Arc::new(checked_read(state, loaded, fields)?);
+    state.cache.insert(key, Cached::Inputs(Arc::clone(&fields)));
+    Ok(fields)
+}
+
+/// A time step at most this fraction of the cache is read and kept whole, and boxes are cut
+/// from it. Files are commonly chunked by whole levels, so that reading any box of a step
+/// inflates every chunk of the step anyway: reading it once whole makes every later box of
+/// that step a copy, and keeps the netCDF thread free. Larger steps are read box by box.
+const STEP_SHARE: usize = 4;
+
+/// The decoded inputs of time step `time_idx`, from the cache or read whole (once, however
+/// many requests want it at the same moment).
+fn whole_step(state: &AppState, loaded: &Loaded, time_idx: usize) -> Result<Arc<Fields>, ApiError> {
+    let key = CacheKey::Step { generation: loaded.generation, time_idx };
+    if let Some(Cached::Inputs(fields)) = state.cache.get(&key) {
+        Metrics::add(&state.metrics.cache_hits, 1);
+        return Ok(fields);
+    }
+    let _one_reader = loaded.step_reads.lock().unwrap_or_else(std::sync::PoisonError::into_inner);
+    if let Some(Cached::Inputs(fields)) = state.cache.get(&key) {
+        Metrics::add(&state.metrics.cache_hits, 1);
+        return Ok(fields);
+    }
+    Metrics::add(&state.metrics.cache_misses, 1);
+    let fields = loaded
+        .dataset
+        .read_fields(time_idx, None)
+        .map_err(|e| read_failure(loaded, query::QueryError::from(e)))?;
+    let fields = Arc::new(checked_read(state, loaded, fields)?);
+    state.cache.insert(key, Cached::Inputs(Arc::clone(&fields)));
+    Ok(fields)
+}
+
+/// `fields` as read, unless the file was rewritten in place meanwhile; counts the bytes.
+fn checked_read(state: &AppState, loaded: &Loaded, fields: Fields) -> Result<Fields, ApiError> {
     // Checked after the read, so that a rewrite during it is caught too.
     if loaded.changed_in_place() {
         let file = loaded.file_name();
@@ -442,8 +490,6 @@ fn inputs(state: &AppState, loaded: &Loaded, plan: &Plan) -> Result<Arc<Fields>,
         });
     }
     Metrics::add(&state.metrics.bytes_read, fields_bytes(&fields) as u64);
-    let fields = Arc::new(fields);
-    state.cache.insert(key, Cached::Inputs(Arc::clone(&fields)));
     Ok(fields)
 }
 

@@ -24,6 +24,13 @@ pub enum CacheKey {
         /// First column and number of columns of the block.
         cols: (usize, usize),
     },
+    /// The decoded inputs of a whole time step, kept when a step is small beside the cache.
+    Step {
+        /// The dataset's load generation.
+        generation: u64,
+        /// Time step.
+        time_idx: usize,
+    },
     /// A finished answer, by the canonical form of its request.
     Answer {
         /// The dataset's load generation.

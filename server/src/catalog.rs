@@ -7,8 +7,10 @@
 //! Reloading polls: every interval each slot's file (or the newest match of its glob) is
 //! looked at — path, size, modification time, inode. A change must hold still for one more
 //! interval before it is loaded, so a file being written is not opened half-way. The new file
-//! is opened and validated (coordinates, and one small block of the latest time step read
-//! through the library) on a blocking thread; only then is it swapped in. A file that fails
+//! is opened and validated on a blocking thread (its header: format, coordinates, variables,
+//! times; and, for the classic formats, that the file is as long as its header says, while
+//! HDF5 checks the same for netCDF-4), without reading any data, so that readiness does not
+//! grow with the size of a step; only then is it swapped in. A file that fails
 //! keeps the old one serving; the failure is logged and shown by `/readyz` until a good file
 //! replaces it. Replace files by writing a new one and renaming it over the old (atomic), as
 //! the fixture generator does. A file rewritten in place under its open handle is refused
@@ -23,7 +25,6 @@ use std::sync::{Arc, RwLock};
 use std::time::SystemTime;
 
 use shearbox_cf::{Dataset, TimeSelector};
-use shearbox_core::BBox;
 
 use crate::config::{DatasetSpec, ServeConfig};
 use crate::wire::{DatasetDoc, DatasetStatusDoc};
@@ -113,6 +114,9 @@ pub struct Loaded {
     pub loaded_at: SystemTime,
     /// Its dataset document (named by the dataset's name).
     pub doc: DatasetDoc,
+    /// Held while a whole time step is read for the cache, so that requests arriving together
+    /// for a step not yet read wait for one read instead of each making their own.
+    pub step_reads: std::sync::Mutex<()>,
 }
 
 impl Loaded {
@@ -326,6 +330,7 @@ impl Catalog {
                     generation,
                     loaded_at: SystemTime::now(),
                     doc,
+                    step_reads: std::sync::Mutex::new(()),
                 });
                 let mut state = slot.write();
                 state.current = Some(loaded);
@@ -360,8 +365,8 @@ fn resolve(spec: &DatasetSpec) -> Result<Fingerprint, String> {
     Fingerprint::of(&path).map_err(|e| format!("{}: cannot read the file: {e}", file_name(&path)))
 }
 
-/// Opens a file and checks that data can be read from it: one small block of the latest
-/// time step. Error messages name the file without its folder.
+/// Opens a file and checks its header (the reader's checks, truncation included) and that it
+/// has a latest time step, reading no data. Error messages name the file without its folder.
 fn open_and_validate(
     name: &str,
     spec: &DatasetSpec,
@@ -372,12 +377,7 @@ fn open_and_validate(
     };
     let overrides = spec.overrides()?;
     let ds = Dataset::open(&fp.path, &overrides).map_err(|e| short(&e))?;
-    let t = ds.time_index(&TimeSelector::Latest).map_err(|e| short(&e))?;
-    let grid = ds.grid();
-    let (lat, lon) = (grid.lat(), grid.lon());
-    let corner = BBox::new(lon[0], lat[0], lon[1], lat[1]).map_err(|e| short(&e))?;
-    let sel = grid.select_box(&corner).map_err(|e| short(&e))?;
-    ds.read_fields(t, Some(&sel.with_halo(grid.n_lat()))).map_err(|e| short(&e))?;
+    ds.time_index(&TimeSelector::Latest).map_err(|e| short(&e))?;
     let doc = DatasetDoc::new(name, &ds);
     Ok((ds, doc))
 }

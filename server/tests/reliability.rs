@@ -291,8 +291,9 @@ fn a_deleted_garbage_or_truncated_file_keeps_the_old_data_serving() {
 fn a_file_truncated_in_place_answers_503_never_a_500_and_says_why() {
     // Rewriting the served file in place (rather than renaming a new one over it) changes
     // the bytes under the open handle (the library reads zeros past the new end): what was
-    // cached keeps serving, every read is refused with 503 rather than answered with numbers
-    // from damaged bytes, and the next good file is served.
+    // cached keeps serving (answers, and time steps read whole), every read is refused with
+    // 503 rather than answered with numbers from damaged bytes, and the next good file is
+    // served.
     let dir = tempfile::tempdir().unwrap();
     let original = std::fs::read(fixtures().join("tidy_nc4.nc")).unwrap();
     replace(dir.path(), "inplace.nc", &original);
@@ -307,11 +308,10 @@ fn a_file_truncated_in_place_answers_503_never_a_500_and_says_why() {
     file.set_len(original.len() as u64 / 4).unwrap();
     drop(file);
 
-    // Boxes across the grid at every time, none asked before: each is read from the file.
+    // Boxes across the grid at the two earlier times, none asked before: each is a read
+    // from the file, refused.
     let mut statuses = Vec::new();
-    for (k, time) in
-        ["2026-01-14T00:00Z", "2026-01-14T06:00Z", "2026-01-14T12:00Z"].iter().enumerate()
-    {
+    for (k, time) in ["2026-01-14T00:00Z", "2026-01-14T06:00Z"].iter().enumerate() {
         for west in [-40, -20, 0, 20] {
             let a = get(
                 addr,
@@ -332,7 +332,15 @@ fn a_file_truncated_in_place_answers_503_never_a_500_and_says_why() {
             statuses.push(a.status);
         }
     }
-    assert_eq!(statuses.len(), 12);
+    assert_eq!(statuses.len(), 8);
+    // The latest step is small beside the cache, so the first request read it whole before
+    // the rewrite: new boxes of it are cut from those values, the file's as it was.
+    for west in [-40, -20, 0, 20] {
+        let bbox = format!("{west},25,{},65", west + 15);
+        let a = get(addr, &url(&bbox), "");
+        assert_eq!(a.status, 200, "{}", String::from_utf8_lossy(&a.body));
+        assert_eq!(a.body, direct("inplace", &fixtures().join("tidy_nc4.nc"), &bbox), "{bbox}");
+    }
     assert_eq!(get(addr, &url("-10,40,10,55"), "").body, cached.body, "the cached answer serves");
     let ready = poll_until(addr, "/readyz", 400, |r| !r.json()["datasets"][0]["error"].is_null());
     let error = ready.json()["datasets"][0]["error"].as_str().unwrap_or("").to_string();

@@ -104,6 +104,33 @@ impl Packing {
         if self.packed { raw * self.scale + self.offset } else { raw }
     }
 
+    /// The physical values of `raw` after `conv`, as f32: the same numbers as
+    /// `conv.apply(self.value(x)) as f32` for each `x`, with the tests and the conversion
+    /// chosen once per slice rather than once per value.
+    fn convert_slice(&self, conv: Conv, raw: &[f64]) -> Vec<f32> {
+        if !self.missing.is_empty() || self.valid_min.is_some() || self.valid_max.is_some() {
+            return raw.iter().map(|&x| conv.apply(self.value(x)) as f32).collect();
+        }
+        // Only the fill value and NaN mark missing values; NaN never equals the fill.
+        let fill = self.fill.unwrap_or(f64::NAN);
+        let (scale, offset) = (self.scale, self.offset);
+        fn run(raw: &[f64], fill: f64, f: impl Fn(f64) -> f64) -> Vec<f32> {
+            raw.iter()
+                .map(|&x| if x == fill || x.is_nan() { f32::NAN } else { f(x) as f32 })
+                .collect()
+        }
+        match (self.packed, conv) {
+            (false, Conv::None) => run(raw, fill, |x| x),
+            (false, Conv::Div(d)) => run(raw, fill, |x| x / d),
+            (false, Conv::Mul(m)) => run(raw, fill, |x| x * m),
+            (false, Conv::Add(a)) => run(raw, fill, |x| x + a),
+            (true, Conv::None) => run(raw, fill, |x| x * scale + offset),
+            (true, Conv::Div(d)) => run(raw, fill, |x| (x * scale + offset) / d),
+            (true, Conv::Mul(m)) => run(raw, fill, |x| (x * scale + offset) * m),
+            (true, Conv::Add(a)) => run(raw, fill, |x| (x * scale + offset) + a),
+        }
+    }
+
     fn describe(&self) -> Option<String> {
         self.packed.then(|| format!("unpacked {}: x*scale_factor+add_offset", self.dtype.name()))
     }
@@ -794,6 +821,13 @@ impl Dataset {
         self.time_var.as_deref()
     }
 
+    /// Number of values one time step of the whole grid decodes to: every field read, at
+    /// every level for a field on levels (its `f32` size is four times this).
+    pub fn values_per_step(&self) -> usize {
+        let cells = self.grid.n_lat() * self.grid.n_lon();
+        self.fields.iter().map(|f| if f.role.is_3d() { self.n_level * cells } else { cells }).sum()
+    }
+
     /// What was recognised: coordinates first, then fields, with units and conversions.
     pub fn recognised(&self) -> &[Recognised] {
         &self.recognised
@@ -1111,14 +1145,14 @@ impl Dataset {
             }
             views.push(view);
         }
-        let convert = |raw: f64| fv.conv.apply(fv.packing.value(raw)) as f32;
+        let convert = |raw: &[f64]| fv.packing.convert_slice(fv.conv, raw);
         // The usual case, one piece already in the kernel's axis order, is converted straight
         // from the library's buffer; otherwise the pieces are joined (and reordered) first.
         // Either way the values are walked as a contiguous slice: element-wise iteration of a
         // dynamic-rank array costs more than the conversion itself.
         if let [only] = views.as_slice() {
             if let Some(slice) = only.as_slice() {
-                let data: Vec<f32> = slice.iter().map(|&raw| convert(raw)).collect();
+                let data = convert(slice);
                 return ArrayD::from_shape_vec(IxDyn(only.shape()), data).map_err(|e| {
                     CfError::Damaged { file: self.path.clone(), reason: format!("internal: {e}") }
                 });
@@ -1130,9 +1164,9 @@ impl Dataset {
                 reason: format!("internal: joining the column pieces of {:?}: {e}", fv.name),
             })?;
         let shape = joined.shape().to_vec();
-        let data: Vec<f32> = match joined.as_slice() {
-            Some(slice) => slice.iter().map(|&raw| convert(raw)).collect(),
-            None => joined.iter().map(|&raw| convert(raw)).collect(),
+        let data = match joined.as_slice() {
+            Some(slice) => convert(slice),
+            None => convert(&joined.iter().copied().collect::<Vec<f64>>()),
         };
         ArrayD::from_shape_vec(IxDyn(&shape), data).map_err(|e| CfError::Damaged {
             file: self.path.clone(),
@@ -1198,3 +1232,47 @@ const _: () = {
     const fn assert_send_sync<T: Send + Sync>() {}
     assert_send_sync::<Dataset>();
 };
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The per-slice conversion gives the same bits as the per-value definition, for every
+    /// kind of packing and unit conversion, on values that include the fill, NaN, values
+    /// outside a valid range, a missing value and signed zeros.
+    #[test]
+    fn slice_conversion_equals_the_per_value_definition() {
+        let raw = [0.0, -0.0, 1.5, -32767.0, 32767.0, f64::NAN, 12.25, -7.0, 9.96921e36, 250.0];
+        let base = Packing {
+            dtype: DType::I16,
+            scale: 1.0,
+            offset: 0.0,
+            packed: false,
+            fill: Some(-32767.0),
+            missing: Vec::new(),
+            valid_min: None,
+            valid_max: None,
+        };
+        let packings = [
+            base.clone(),
+            Packing { fill: None, ..base.clone() },
+            Packing { scale: 0.01, offset: 273.15, packed: true, ..base.clone() },
+            Packing { missing: vec![-7.0], ..base.clone() },
+            Packing { valid_min: Some(-10.0), valid_max: Some(100.0), ..base.clone() },
+            Packing { dtype: DType::F32, fill: Some(9.96921e36), ..base.clone() },
+        ];
+        let convs = [Conv::None, Conv::Div(100.0), Conv::Mul(9.80665), Conv::Add(273.15)];
+        for p in &packings {
+            for &conv in &convs {
+                let fast = p.convert_slice(conv, &raw);
+                let slow: Vec<f32> = raw.iter().map(|&x| conv.apply(p.value(x)) as f32).collect();
+                let bits = |v: &[f32]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+                let nan = |v: &[f32]| v.iter().map(|x| x.is_nan()).collect::<Vec<_>>();
+                assert_eq!(nan(&fast), nan(&slow), "{p:?} {conv:?}");
+                let finite =
+                    |v: &[f32]| v.iter().filter(|x| !x.is_nan()).copied().collect::<Vec<f32>>();
+                assert_eq!(bits(&finite(&fast)), bits(&finite(&slow)), "{p:?} {conv:?}");
+            }
+        }
+    }
+}

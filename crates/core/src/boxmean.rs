@@ -5,7 +5,9 @@
 //! component, and their speed and direction are those of the mean vector. The turning of a
 //! layer is judged from the box-mean geostrophic winds at its bottom and top.
 
-use ndarray::{ArrayView2, ArrayView3, Axis};
+use std::ops::Range;
+
+use ndarray::{ArrayView2, ArrayView3, Axis, s};
 
 use crate::kernel::{Diagnostics, LayerDiagnostics, MeanTemperatureKind, ThicknessMethod};
 use crate::{BBox, CoreError, Fields, Layer, MaskCounts, MaskReason};
@@ -134,43 +136,170 @@ pub struct BoxProfile {
     pub layers: Vec<LayerMeans>,
 }
 
-/// The cells of a box with their weights.
+/// The cells of a box: the rows with their weights cos φ and the runs of columns, the same
+/// for every row of a regular grid. Means walk each row's runs as contiguous slices.
 struct BoxCells {
-    cells: Vec<(usize, usize, f64)>,
+    rows: Vec<(usize, f64)>,
+    cols: Vec<Range<usize>>,
+}
+
+/// Sum and count of the finite values of one row of a box, in f64, over the row's runs of
+/// columns in order. The k-th cell of the row goes to partial sum k mod 4 wherever the runs
+/// split, so a box gets the same bits whether its row is one run of a block or two runs
+/// across the seam of a periodic grid; four partial sums let the compiler keep several
+/// additions in flight.
+#[derive(Default)]
+struct RowSum {
+    s: [f64; 4],
+    n: [usize; 4],
+    k: usize,
+}
+
+impl RowSum {
+    #[inline]
+    fn push(&mut self, lane: usize, x: f32) {
+        let ok = x.is_finite();
+        self.s[lane] += if ok { f64::from(x) } else { 0.0 };
+        self.n[lane] += usize::from(ok);
+    }
+
+    #[inline]
+    fn add(&mut self, xs: &[f32]) {
+        let head = ((4 - self.k % 4) % 4).min(xs.len());
+        for &x in &xs[..head] {
+            self.push(self.k % 4, x);
+            self.k += 1;
+        }
+        let mut chunks = xs[head..].chunks_exact(4);
+        for c in &mut chunks {
+            for (lane, &x) in c.iter().enumerate() {
+                self.push(lane, x);
+            }
+        }
+        self.k += xs[head..].len() - chunks.remainder().len();
+        for &x in chunks.remainder() {
+            self.push(self.k % 4, x);
+            self.k += 1;
+        }
+    }
+
+    fn total(&self) -> (f64, usize) {
+        ((self.s[0] + self.s[1]) + (self.s[2] + self.s[3]), self.n.iter().sum())
+    }
+}
+
+/// Sums and count of the cells where both `u` and `v` are finite, added to `acc`.
+#[inline]
+fn finite_pair_sum(u: &[f32], v: &[f32], acc: &mut (f64, f64, usize)) {
+    for (&x, &y) in u.iter().zip(v) {
+        let ok = x.is_finite() && y.is_finite();
+        acc.0 += if ok { f64::from(x) } else { 0.0 };
+        acc.1 += if ok { f64::from(y) } else { 0.0 };
+        acc.2 += usize::from(ok);
+    }
 }
 
 impl BoxCells {
-    fn mean(&self, a: ArrayView2<'_, f32>) -> Option<f64> {
-        let (mut sum, mut weight) = (0.0, 0.0);
-        for &(j, i, w) in &self.cells {
-            let x = f64::from(a[[j, i]]);
-            if x.is_finite() {
-                sum += w * x;
-                weight += w;
+    fn new(grid: &crate::Grid, sel: &crate::Selection, bbox: &BBox) -> BoxCells {
+        // A cell is in the box when its centre is: on a regular grid that is a row test times
+        // a column test, so the box is (rows inside) × (columns inside).
+        let rows = sel
+            .rows
+            .clone()
+            .filter(|&j| grid.row_in_box(j, bbox))
+            .map(|j| (j, grid.lat()[j].to_radians().cos()))
+            .collect();
+        let mut cols: Vec<Range<usize>> = Vec::new();
+        for r in sel.col_ranges() {
+            for i in r {
+                if !bbox.contains_lon(grid.lon()[i]) {
+                    continue;
+                }
+                match cols.last_mut() {
+                    Some(last) if last.end == i => last.end = i + 1,
+                    _ => cols.push(i..i + 1),
+                }
             }
         }
+        BoxCells { rows, cols }
+    }
+
+    fn n_cells(&self) -> usize {
+        self.rows.len() * self.cols.iter().map(ExactSizeIterator::len).sum::<usize>()
+    }
+
+    /// Each row of the box in `a`: its weight and its runs of columns as slices.
+    fn for_rows(
+        &self,
+        a: &ArrayView2<'_, f32>,
+        mut f: impl FnMut(f64, &mut dyn Iterator<Item = &[f32]>),
+    ) {
+        for &(j, w) in &self.rows {
+            let row = a.row(j);
+            match row.to_slice() {
+                Some(xs) => f(w, &mut self.cols.iter().map(|r| &xs[r.clone()])),
+                None => {
+                    // Not met with the arrays of this crate, which are all in standard order.
+                    let xs = row.to_vec();
+                    f(w, &mut self.cols.iter().map(|r| &xs[r.clone()]))
+                }
+            }
+        }
+    }
+
+    fn mean(&self, a: ArrayView2<'_, f32>) -> Option<f64> {
+        let (mut sum, mut weight) = (0.0, 0.0);
+        self.for_rows(&a, |w, runs| {
+            let mut row = RowSum::default();
+            for xs in runs {
+                row.add(xs);
+            }
+            let (s, n) = row.total();
+            sum += w * s;
+            weight += w * n as f64;
+        });
         (weight > 0.0).then(|| sum / weight)
     }
 
-    fn mean_vector(&self, u: ArrayView2<'_, f32>, v: ArrayView2<'_, f32>) -> Option<Vector> {
-        let (mut su, mut sv, mut weight) = (0.0, 0.0, 0.0);
-        for &(j, i, w) in &self.cells {
-            let (x, y) = (f64::from(u[[j, i]]), f64::from(v[[j, i]]));
-            if x.is_finite() && y.is_finite() {
-                su += w * x;
-                sv += w * y;
-                weight += w;
+    /// The mean vector where both components are defined, and the number of such cells.
+    fn mean_vector_counted(
+        &self,
+        u: ArrayView2<'_, f32>,
+        v: ArrayView2<'_, f32>,
+    ) -> (Option<Vector>, usize) {
+        let (mut su, mut sv, mut weight, mut count) = (0.0, 0.0, 0.0, 0);
+        for &(j, w) in &self.rows {
+            let mut acc = (0.0, 0.0, 0);
+            for r in &self.cols {
+                let (ur, vr) = (u.slice(s![j, r.clone()]), v.slice(s![j, r.clone()]));
+                match (ur.as_slice(), vr.as_slice()) {
+                    (Some(x), Some(y)) => finite_pair_sum(x, y, &mut acc),
+                    _ => finite_pair_sum(&ur.to_vec(), &vr.to_vec(), &mut acc),
+                }
             }
+            su += w * acc.0;
+            sv += w * acc.1;
+            weight += w * acc.2 as f64;
+            count += acc.2;
         }
-        (weight > 0.0).then(|| Vector { u: su / weight, v: sv / weight })
+        ((weight > 0.0).then(|| Vector { u: su / weight, v: sv / weight }), count)
     }
 
-    /// Cells where both components of a vector are defined.
-    fn count_defined(&self, u: ArrayView2<'_, f32>, v: ArrayView2<'_, f32>) -> usize {
-        self.cells
-            .iter()
-            .filter(|&&(j, i, _)| u[[j, i]].is_finite() && v[[j, i]].is_finite())
-            .count()
+    fn mean_vector(&self, u: ArrayView2<'_, f32>, v: ArrayView2<'_, f32>) -> Option<Vector> {
+        self.mean_vector_counted(u, v).0
+    }
+
+    /// Cells of the box by the mask reason of each.
+    fn mask_counts(&self, mask: ArrayView2<'_, u8>) -> MaskCounts {
+        let mut counts = MaskCounts::default();
+        for &(j, _) in &self.rows {
+            for r in &self.cols {
+                for &m in mask.slice(s![j, r.clone()]) {
+                    counts.add(MaskReason::from_u8(m));
+                }
+            }
+        }
+        counts
     }
 }
 
@@ -186,35 +315,28 @@ pub fn box_profile(
 ) -> Result<BoxProfile, CoreError> {
     let grid = fields.grid();
     let sel = grid.select_box(bbox)?;
-    let cells: Vec<(usize, usize, f64)> = sel
-        .rows
-        .clone()
-        .flat_map(|j| sel.col_indices().map(move |i| (j, i)).collect::<Vec<_>>())
-        .filter(|&(j, i)| grid.cell_in_box(j, i, bbox))
-        .map(|(j, i)| (j, i, grid.lat()[j].to_radians().cos()))
-        .collect();
-    let bc = BoxCells { cells };
+    let bc = BoxCells::new(grid, &sel, bbox);
     let levels: Vec<LevelMeans> = (0..fields.levels().len())
         .map(|k| {
             let geo = diag.levels.get(k);
+            let (geostrophic_wind, valid_cells) = geo.map_or((None, 0), |g| {
+                bc.mean_vector_counted(g.geostrophic_u.view(), g.geostrophic_v.view())
+            });
             LevelMeans {
                 pressure_pa: fields.levels().pa()[k],
                 geopotential_height: level_view(fields.geopotential_height(), k)
                     .and_then(|z| bc.mean(z)),
                 temperature: level_view(fields.temperature(), k).and_then(|t| bc.mean(t)),
-                geostrophic_wind: geo
-                    .and_then(|g| bc.mean_vector(g.geostrophic_u.view(), g.geostrophic_v.view())),
+                geostrophic_wind,
                 wind: fields.wind().and_then(|(u, v)| {
                     bc.mean_vector(u.index_axis_move(Axis(0), k), v.index_axis_move(Axis(0), k))
                 }),
-                valid_cells: geo.map_or(0, |g| {
-                    bc.count_defined(g.geostrophic_u.view(), g.geostrophic_v.view())
-                }),
+                valid_cells,
             }
         })
         .collect();
     let layers = diag.layers.iter().map(|l| layer_means(fields, l, &levels, &bc)).collect();
-    Ok(BoxProfile { bbox: *bbox, n_cells: bc.cells.len(), levels, layers })
+    Ok(BoxProfile { bbox: *bbox, n_cells: bc.n_cells(), levels, layers })
 }
 
 fn layer_means(
@@ -227,10 +349,7 @@ fn layer_means(
     let mean_vec = |a: &Option<(ndarray::Array2<f32>, ndarray::Array2<f32>)>| {
         a.as_ref().and_then(|(u, v)| bc.mean_vector(u.view(), v.view()))
     };
-    let mut counts = MaskCounts::default();
-    for &(j, i, _) in &bc.cells {
-        counts.add(MaskReason::from_u8(l.mask[[j, i]]));
-    }
+    let counts = bc.mask_counts(l.mask.view());
     let turning =
         match (levels[l.layer.bottom].geostrophic_wind, levels[l.layer.top].geostrophic_wind) {
             (Some(b), Some(t)) => Some(Turning::between(b, t)),

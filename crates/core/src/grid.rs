@@ -181,10 +181,13 @@ impl Grid {
 
     /// Whether the centre of cell (`lat_idx`, `lon_idx`) lies inside `bbox`.
     pub fn cell_in_box(&self, lat_idx: usize, lon_idx: usize, bbox: &BBox) -> bool {
+        self.row_in_box(lat_idx, bbox) && bbox.contains_lon(self.lon[lon_idx])
+    }
+
+    /// Whether the latitude of row `lat_idx` lies within the box's south and north edges.
+    pub fn row_in_box(&self, lat_idx: usize, bbox: &BBox) -> bool {
         let lat = self.lat[lat_idx];
-        lat >= bbox.south - EPS_DEG
-            && lat <= bbox.north + EPS_DEG
-            && bbox.contains_lon(self.lon[lon_idx])
+        lat >= bbox.south - EPS_DEG && lat <= bbox.north + EPS_DEG
     }
 }
 

@@ -60,7 +60,7 @@ pub use fields::{Fields, FieldsBuilder};
 pub use grid::{BBox, Grid, Selection};
 pub use kernel::{
     Diagnostics, LayerDiagnostics, LevelDiagnostics, MIN_GRADIENT_FOR_RATIO, MeanTemperatureKind,
-    Parallelism, ThicknessMethod, compute, compute_into, compute_with,
+    Parallelism, ThicknessMethod, compute, compute_baseline, compute_into, compute_with,
 };
 pub use levels::{Layer, Levels};
 pub use mask::{MaskCounts, MaskReason};

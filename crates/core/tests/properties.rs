@@ -7,7 +7,7 @@ mod common;
 use ndarray::Array2;
 use shearbox_core::{
     BBox, Config, Diagnostics, Fields, FieldsBuilder, Grid, LayerDiagnostics, Levels, Parallelism,
-    box_profile, compute, compute_into, compute_with,
+    box_profile, compute, compute_baseline, compute_into, compute_with,
 };
 
 /// A smooth, hydrostatically built atmosphere with every optional field, on `grid`.
@@ -189,7 +189,7 @@ fn assert_identical(a: &Diagnostics, b: &Diagnostics) {
         assert_eq!(la.mask, lb.mask);
         for ((name, x), (_, y)) in arrays(la).into_iter().zip(arrays(lb)) {
             let same = x.iter().zip(y.iter()).all(|(p, q)| p.to_bits() == q.to_bits());
-            assert!(same, "{name} differs between serial and parallel");
+            assert!(same, "{name} differs");
         }
     }
     for (la, lb) in a.levels.iter().zip(&b.levels) {
@@ -339,6 +339,24 @@ fn serial_and_parallel_agree_bit_for_bit() {
     let pool = rayon::ThreadPoolBuilder::new().num_threads(4).build().unwrap();
     let parallel = pool.install(|| compute_with(&fields, &layers, &cfg, Parallelism::Rayon));
     assert_identical(&serial, &parallel);
+}
+
+/// The copy of the arithmetic compiled for AVX2 (used where the processor has it) and the
+/// baseline copy give the same bits; where the processor lacks AVX2 both runs take the
+/// baseline and the check is trivially met.
+#[test]
+fn instruction_sets_agree_bit_for_bit() {
+    let fields =
+        atmosphere(common::grid(common::span(-90.0, 90.0, 2.0), common::span(0.0, 358.0, 2.0)));
+    let layers = all_layers(fields.levels());
+    let cfg = Config::default();
+    let detected = compute_with(&fields, &layers, &cfg, Parallelism::Serial);
+    let baseline = compute_baseline(&fields, &layers, &cfg, Parallelism::Serial);
+    assert_identical(&detected, &baseline);
+    for (a, b) in detected.levels.iter().zip(&baseline.levels) {
+        let bits = |x: &Array2<f32>| x.iter().map(|v| v.to_bits()).collect::<Vec<_>>();
+        assert_eq!(bits(&a.geostrophic_v), bits(&b.geostrophic_v));
+    }
 }
 
 /// Hemisphere rules (common practice, and they follow from the formulas: the turning
