@@ -55,6 +55,7 @@ use crate::state::AppState;
     tags(
         (name = "datasets", description = "What the service offers"),
         (name = "queries", description = "Box queries"),
+        (name = "pictures", description = "Hodograph and layer map as SVG"),
         (name = "service", description = "Health, readiness, metrics and this document")
     )
 )]
@@ -67,6 +68,8 @@ fn routes() -> (Router<AppState>, utoipa::openapi::OpenApi) {
         .routes(routes!(api::get_dataset))
         .routes(routes!(api::profile))
         .routes(routes!(api::layer))
+        .routes(routes!(crate::pictures::hodograph))
+        .routes(routes!(crate::pictures::map))
         .routes(routes!(api::healthz))
         .routes(routes!(api::readyz))
         .routes(routes!(api::metrics))

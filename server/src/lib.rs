@@ -37,6 +37,7 @@ pub mod conn;
 pub mod error;
 pub mod metrics;
 pub mod page;
+pub mod pictures;
 pub mod query;
 pub mod state;
 pub mod wire;

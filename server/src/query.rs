@@ -10,8 +10,11 @@
 //! numbers through the same code.
 
 use shearbox_cf::{CfError, Dataset, TimeSelector};
+use std::ops::Range;
+
 use shearbox_core::{
-    BBox, Config, CoreError, Diagnostics, Fields, Layer, Selection, box_profile, compute,
+    BBox, BoxProfile, Config, CoreError, Diagnostics, Fields, Grid, Layer, Selection, box_profile,
+    compute,
 };
 use thiserror::Error;
 
@@ -86,11 +89,23 @@ pub fn evaluate(
     fields: &Fields,
     cfg: &Config,
 ) -> Result<(ProfileDoc, Diagnostics), QueryError> {
-    let diag = compute(fields, &plan.layers, cfg);
-    let profile = box_profile(fields, &diag, &request.bbox)?;
+    let (profile, diag) = diagnose(request, plan, fields, cfg)?;
     // A file without a time coordinate has one step and no time text.
     let time = ds.times().get(plan.time_idx).map_or("", String::as_str);
     Ok((ProfileDoc::new(name, time, &request.bbox, &profile), diag))
+}
+
+/// The diagnostics of the planned layers on the block and the box-mean profile of the box:
+/// the numbers behind the profile document ([`evaluate`]) and the pictures.
+pub fn diagnose(
+    request: &ProfileRequest,
+    plan: &Plan,
+    fields: &Fields,
+    cfg: &Config,
+) -> Result<(BoxProfile, Diagnostics), QueryError> {
+    let diag = compute(fields, &plan.layers, cfg);
+    let profile = box_profile(fields, &diag, &request.bbox)?;
+    Ok((profile, diag))
 }
 
 /// Computes the profile document of `request` on `ds`, named `name` in the document.
@@ -161,4 +176,35 @@ pub fn gridded_layer(
         thermal_wind_u_ms: values(&layer.thermal_wind_u),
         thermal_wind_v_ms: values(&layer.thermal_wind_v),
     })
+}
+
+/// Where the box's cells sit in the block that `plan` reads: a run of block rows, and the
+/// block columns of the box's columns in order (a run, except on a periodic grid whose
+/// block wraps the whole circle).
+pub fn box_in_block(plan: &Plan) -> (Range<usize>, Vec<usize>) {
+    let offset = plan.selection.rows.start - plan.block.rows.start;
+    let rows = offset..offset + plan.selection.rows.len();
+    let block_cols: Vec<usize> = plan.block.col_indices().collect();
+    let cols = plan
+        .selection
+        .col_indices()
+        .filter_map(|c| block_cols.iter().position(|&b| b == c))
+        .collect();
+    (rows, cols)
+}
+
+/// A box holding every cell of `grid`: the whole circle on a periodic grid, else from the
+/// first to the last longitude (across the antimeridian where the grid crosses it).
+pub fn whole_grid_bbox(grid: &Grid) -> BBox {
+    let (lat, lon) = (grid.lat(), grid.lon());
+    let (south, north) = (lat[0], lat[lat.len() - 1]);
+    let (west, east) = if grid.is_periodic() {
+        (-180.0, 180.0)
+    } else {
+        let west = (lon[0] + 180.0).rem_euclid(360.0) - 180.0;
+        let span: f64 = lon.windows(2).map(|w| (w[1] - w[0]).rem_euclid(360.0)).sum();
+        let east = west + span;
+        (west, if east > 180.0 { east - 360.0 } else { east })
+    };
+    BBox::new(west, south, east, north).expect("a valid grid's extent is a valid box")
 }

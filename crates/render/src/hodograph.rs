@@ -122,7 +122,13 @@ pub fn hodograph_svg(profile: &BoxProfile, caption: &Caption<'_>) -> Result<Stri
     header(&mut sheet, profile, caption)?;
 
     let ring_step = ring_step(&frame);
-    rings(&mut sheet, &frame, ring_step)?;
+    let bearings: Vec<f64> = winds
+        .iter()
+        .chain(&observed)
+        .filter(|(_, w)| w.speed() > 0.5 * ring_step)
+        .map(|(_, w)| w.v.atan2(w.u))
+        .collect();
+    rings(&mut sheet, &frame, ring_step, &bearings)?;
     axes(&mut sheet, &frame)?;
 
     for layer in &profile.layers {
@@ -153,7 +159,8 @@ pub fn hodograph_svg(profile: &BoxProfile, caption: &Caption<'_>) -> Result<Stri
 
     observed_marks(&mut sheet, &frame, &observed)?;
 
-    for (p, w) in &winds {
+    let pixels: Vec<(f64, f64)> = winds.iter().map(|(_, w)| frame.to_px(w.u, w.v)).collect();
+    for (k, (p, w)) in winds.iter().enumerate() {
         let pressure = hpa(*p);
         let spec = frame.spec();
         let at = (w.u, w.v);
@@ -162,12 +169,12 @@ pub fn hodograph_svg(profile: &BoxProfile, caption: &Caption<'_>) -> Result<Stri
             &[("class", "level".into()), ("data-pressure-hpa", pressure.clone())],
             |a| a.apply_coord_spec(spec).draw(&Circle::new(at, 5, palette::LEVEL.filled())),
         )?;
-        let (x, y) = px(frame.to_px(w.u, w.v));
-        let style = anchored(font(12.0, palette::INK), HPos::Left, VPos::Bottom);
+        let (pos, h) = label_place(&pixels, k);
+        let style = anchored(font(12.0, palette::INK), h, VPos::Center);
         sheet.element(
             "text",
             &[("class", "level-label".into()), ("data-pressure-hpa", pressure.clone())],
-            |a| a.draw(&Text::new(pressure.clone(), (x + 7, y - 5), style)),
+            |a| a.draw(&Text::new(pressure.clone(), px(pos), style)),
         )?;
     }
     if winds.is_empty() {
@@ -222,6 +229,21 @@ fn ring_step(frame: &Frame) -> f64 {
     RING_STEPS.iter().copied().find(|s| reach / s <= 8.0).unwrap_or(reach / 8.0)
 }
 
+/// Where the label of point `k` of the trace `pixels` goes: 11 px off the trace, square to
+/// its direction there, on alternate sides for consecutive levels so that close points do
+/// not stack their labels; and its horizontal anchor.
+fn label_place(pixels: &[(f64, f64)], k: usize) -> ((f64, f64), HPos) {
+    let p = pixels[k];
+    let before = pixels[k.saturating_sub(1)];
+    let after = pixels[(k + 1).min(pixels.len() - 1)];
+    let (tx, ty) = (after.0 - before.0, after.1 - before.1);
+    let norm = tx.hypot(ty);
+    let side = if k % 2 == 0 { 1.0 } else { -1.0 };
+    let (nx, ny) = if norm > 1e-9 { (-ty / norm * side, tx / norm * side) } else { (0.71, -0.71) };
+    let h = if nx >= 0.0 { HPos::Left } else { HPos::Right };
+    ((p.0 + 11.0 * nx, p.1 + 11.0 * ny), h)
+}
+
 fn header(
     sheet: &mut Sheet,
     profile: &BoxProfile,
@@ -244,7 +266,7 @@ fn header(
     })
 }
 
-fn rings(sheet: &mut Sheet, frame: &Frame, step: f64) -> Result<(), RenderError> {
+fn rings(sheet: &mut Sheet, frame: &Frame, step: f64, bearings: &[f64]) -> Result<(), RenderError> {
     let (l, t, r, b) = frame.px;
     sheet.raw(&format!(
         "<defs><clipPath id=\"hodograph-clip\"><rect x=\"{l}\" y=\"{t}\" width=\"{}\" \
@@ -256,26 +278,19 @@ fn rings(sheet: &mut Sheet, frame: &Frame, step: f64) -> Result<(), RenderError>
         a.draw(&Rectangle::new([(l, t), (r, b)], palette::QUIET.stroke_width(1)))
     })?;
     let px_per_ms = f64::from(r - l) / (frame.x.1 - frame.x.0);
-    let centre = (0.5 * (frame.x.0 + frame.x.1), 0.5 * (frame.y.0 + frame.y.1));
-    let norm = f64::hypot(centre.0, centre.1);
-    // Labels sit on the rings toward the middle of the view, where they are most likely
-    // inside it; a ring whose label would fall outside is left out.
-    let dir = if norm > 1e-9 {
-        (centre.0 / norm, centre.1 / norm)
-    } else {
-        (std::f64::consts::FRAC_1_SQRT_2, std::f64::consts::FRAC_1_SQRT_2)
-    };
+    let inset = Frame { px: (l + 12, t + 12, r - 30, b - 12), ..frame.clone() };
+    let bearings = label_bearings(frame, &inset, step, bearings);
     let origin = px(frame.to_px(0.0, 0.0));
     let reach = farthest(frame);
     let mut k = 1;
     while f64::from(k) * step <= reach {
         let speed = f64::from(k) * step;
         k += 1;
-        let at = frame.to_px(speed * dir.0, speed * dir.1);
-        let inset = Frame { px: (l + 12, t + 12, r - 30, b - 12), ..frame.clone() };
-        if !inset.holds_px(at) {
-            continue;
-        }
+        let spot = bearings
+            .iter()
+            .map(|d| frame.to_px(speed * d.0, speed * d.1))
+            .find(|&p| inset.holds_px(p));
+        let Some(at) = spot else { continue };
         let radius = (speed * px_per_ms).round() as u32;
         let label = format!("{} m s⁻¹", num(speed, 1));
         let value = num(speed, 2);
@@ -294,6 +309,43 @@ fn rings(sheet: &mut Sheet, frame: &Frame, step: f64) -> Result<(), RenderError>
         )?;
     }
     Ok(())
+}
+
+/// The directions (unit vectors in u, v) along which ring labels go, best first: of 24
+/// bearings, among those that label at least 60 % of the most rings any bearing labels
+/// inside `inset`, the one farthest in angle from every plotted wind (`bearings`, radians),
+/// so that labels stay off the trace; then every other bearing, farthest from the winds
+/// first, for the rings whose label falls outside the view along the first.
+fn label_bearings(frame: &Frame, inset: &Frame, step: f64, bearings: &[f64]) -> Vec<(f64, f64)> {
+    let reach = farthest(frame);
+    let mut candidates: Vec<(usize, f64, (f64, f64))> = (0..24)
+        .map(|k| {
+            let angle = f64::from(k) * std::f64::consts::PI / 12.0;
+            let dir = (angle.cos(), angle.sin());
+            let mut inside = 0;
+            let mut speed = step;
+            while speed <= reach {
+                if inset.holds_px(frame.to_px(speed * dir.0, speed * dir.1)) {
+                    inside += 1;
+                }
+                speed += step;
+            }
+            let apart = bearings
+                .iter()
+                .map(|b| {
+                    let d = (angle - b).rem_euclid(std::f64::consts::TAU);
+                    d.min(std::f64::consts::TAU - d)
+                })
+                .fold(std::f64::consts::PI, f64::min);
+            (inside, apart, dir)
+        })
+        .collect();
+    let most = candidates.iter().map(|c| c.0).max().unwrap_or(0);
+    let enough = (most * 3).div_ceil(5).max(1);
+    candidates.sort_by(|a, b| b.1.total_cmp(&a.1).then(b.0.cmp(&a.0)));
+    let first = candidates.iter().position(|c| c.0 >= enough).unwrap_or(0);
+    let best = candidates.remove(first);
+    std::iter::once(best.2).chain(candidates.into_iter().map(|c| c.2)).collect()
 }
 
 fn axes(sheet: &mut Sheet, frame: &Frame) -> Result<(), RenderError> {

@@ -29,7 +29,7 @@
 
 use std::ops::Range;
 
-use ndarray::{ArrayView2, s};
+use ndarray::{ArrayView2, Axis, CowArray, Ix2, s};
 use plotters::prelude::*;
 use shearbox_core::{Grid, LayerDiagnostics, Levels};
 
@@ -91,10 +91,10 @@ pub fn default_stride(rows: usize, cols: usize) -> usize {
 pub struct LayerField<'a> {
     lat: Vec<f64>,
     lon: Vec<f64>,
-    thickness: ArrayView2<'a, f32>,
-    thermal_wind_u: ArrayView2<'a, f32>,
-    thermal_wind_v: ArrayView2<'a, f32>,
-    temperature_gradient: ArrayView2<'a, f32>,
+    thickness: CowArray<'a, f32, Ix2>,
+    thermal_wind_u: CowArray<'a, f32, Ix2>,
+    thermal_wind_v: CowArray<'a, f32, Ix2>,
+    temperature_gradient: CowArray<'a, f32, Ix2>,
     layer_hpa: (f64, f64),
 }
 
@@ -139,10 +139,10 @@ impl<'a> LayerField<'a> {
         Ok(Self {
             lat: lat.to_vec(),
             lon: unwrap_lon(lon)?,
-            thickness,
-            thermal_wind_u: thermal_wind.0,
-            thermal_wind_v: thermal_wind.1,
-            temperature_gradient,
+            thickness: thickness.into(),
+            thermal_wind_u: thermal_wind.0.into(),
+            thermal_wind_v: thermal_wind.1.into(),
+            temperature_gradient: temperature_gradient.into(),
             layer_hpa,
         })
     }
@@ -170,23 +170,37 @@ impl<'a> LayerField<'a> {
         )
     }
 
-    /// The block of rows `rows` and columns `cols` (for instance a box inside the block read
-    /// with its halo).
-    pub fn window(&self, rows: Range<usize>, cols: Range<usize>) -> Result<Self, RenderError> {
+    /// The cells of rows `rows` and of columns `cols`, in that order (for instance a box
+    /// inside the block read with its halo, whose columns may wrap around a periodic grid).
+    /// The longitudes are unwrapped again in the new order.
+    pub fn select(
+        &self,
+        rows: Range<usize>,
+        cols: &[usize],
+    ) -> Result<LayerField<'static>, RenderError> {
         let (n_lat, n_lon) = (self.lat.len(), self.lon.len());
-        if rows.is_empty() || cols.is_empty() || rows.end > n_lat || cols.end > n_lon {
+        if rows.is_empty()
+            || cols.is_empty()
+            || rows.end > n_lat
+            || cols.iter().any(|&i| i >= n_lon)
+        {
             return Err(RenderError::BadCoordinates {
-                axis: "window",
+                axis: "selection",
                 reason: format!(
-                    "rows {rows:?} and columns {cols:?} are not a non-empty block of the \
-                     {n_lat} × {n_lon} grid"
+                    "rows {rows:?} and {} columns up to {:?} are not a non-empty block of the \
+                     {n_lat} × {n_lon} grid",
+                    cols.len(),
+                    cols.iter().max()
                 ),
             });
         }
-        let cut = |a: &ArrayView2<'a, f32>| (*a).slice_move(s![rows.clone(), cols.clone()]);
-        Ok(Self {
+        let cut = |a: &CowArray<'a, f32, Ix2>| -> CowArray<'static, f32, Ix2> {
+            a.slice(s![rows.clone(), ..]).select(Axis(1), cols).into()
+        };
+        let lon: Vec<f64> = cols.iter().map(|&i| self.lon[i]).collect();
+        Ok(LayerField {
             lat: self.lat[rows.clone()].to_vec(),
-            lon: self.lon[cols.clone()].to_vec(),
+            lon: unwrap_lon(&lon)?,
             thickness: cut(&self.thickness),
             thermal_wind_u: cut(&self.thermal_wind_u),
             thermal_wind_v: cut(&self.thermal_wind_v),
@@ -319,7 +333,7 @@ pub fn map_svg(
             fits: fits.unwrap_or(rows.max(cols)),
         });
     }
-    let contour_values = levels(field.thickness, interval)?;
+    let contour_values = levels(field.thickness.view(), interval)?;
 
     let [west, south, east, north] = field.extent();
     let mid = (0.5 * (south + north)).to_radians().cos().max(0.2);
@@ -354,7 +368,7 @@ pub fn map_svg(
 
     shading(&mut sheet, field, &frame)?;
     graticule(&mut sheet, &frame)?;
-    let lines = contour_lines(field.thickness, &contour_values)?;
+    let lines = contour_lines(field.thickness.view(), &contour_values)?;
     contours(&mut sheet, field, &frame, &lines, &contour_values)?;
     let reference = arrows(&mut sheet, field, &frame, stride)?;
     sheet.element("rect", &[("id", "plot-area".into())], |a| {
