@@ -9,9 +9,9 @@
 //! [`evaluate`] computes the diagnostics and the document. Both edges therefore produce their
 //! numbers through the same code.
 
-use shearbox_cf::{CfError, Dataset, TimeSelector};
 use std::ops::Range;
 
+use shearbox_cf::{CfError, Dataset, TimeSelector};
 use shearbox_core::{
     BBox, BoxProfile, Config, CoreError, Diagnostics, Fields, Grid, Layer, Selection, box_profile,
     compute,
