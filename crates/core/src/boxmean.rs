@@ -269,13 +269,19 @@ impl BoxCells {
     ) -> (Option<Vector>, usize) {
         let (mut su, mut sv, mut weight, mut count) = (0.0, 0.0, 0.0, 0);
         for &(j, w) in &self.rows {
+            let (ur, vr) = (u.row(j), v.row(j));
+            let (ub, vb);
+            let (x, y) = match (ur.to_slice(), vr.to_slice()) {
+                (Some(x), Some(y)) => (x, y),
+                _ => {
+                    // Not met with the arrays of this crate, which are all in standard order.
+                    (ub, vb) = (ur.to_vec(), vr.to_vec());
+                    (ub.as_slice(), vb.as_slice())
+                }
+            };
             let mut acc = (0.0, 0.0, 0);
             for r in &self.cols {
-                let (ur, vr) = (u.slice(s![j, r.clone()]), v.slice(s![j, r.clone()]));
-                match (ur.as_slice(), vr.as_slice()) {
-                    (Some(x), Some(y)) => finite_pair_sum(x, y, &mut acc),
-                    _ => finite_pair_sum(&ur.to_vec(), &vr.to_vec(), &mut acc),
-                }
+                finite_pair_sum(&x[r.clone()], &y[r.clone()], &mut acc);
             }
             su += w * acc.0;
             sv += w * acc.1;

@@ -1,6 +1,6 @@
 //! The inputs of one time step, validated against the grid and the levels.
 
-use ndarray::{Array2, Array3, ArrayView2, ArrayView3, Axis};
+use ndarray::{Array2, Array3, ArrayView2, ArrayView3};
 
 use crate::{CoreError, Grid, Levels, Selection};
 
@@ -196,16 +196,33 @@ impl Fields {
 
     /// The same fields on the block `sel` of the grid (for example a box with its halo).
     pub fn subset(&self, sel: &Selection) -> Fields {
-        let cols: Vec<usize> = sel.col_indices().collect();
+        let ranges = sel.col_ranges();
+        let (n_rows, n_cols, n_lon) = (sel.rows.len(), sel.cols.len, self.grid.n_lon());
+        // The arrays are in standard layout (`FieldsBuilder::build`): each row's runs of
+        // columns are copied as slices.
+        let cut = |data: &[f32], planes: usize| -> Vec<f32> {
+            let n_lat = self.grid.n_lat();
+            let mut out = Vec::with_capacity(planes * n_rows * n_cols);
+            for k in 0..planes {
+                for j in sel.rows.clone() {
+                    let row = &data[(k * n_lat + j) * n_lon..][..n_lon];
+                    for r in &ranges {
+                        out.extend_from_slice(&row[r.clone()]);
+                    }
+                }
+            }
+            out
+        };
         let cut3 = |a: &Array3<f32>| {
-            let mut b = a.slice(ndarray::s![.., sel.rows.clone(), ..]).select(Axis(2), &cols);
-            standardise(&mut b);
-            b
+            let planes = a.dim().0;
+            let data = a.as_slice().expect("fields are kept in standard layout");
+            Array3::from_shape_vec((planes, n_rows, n_cols), cut(data, planes))
+                .expect("the block's shape holds its values")
         };
         let cut2 = |a: &Array2<f32>| {
-            let mut b = a.slice(ndarray::s![sel.rows.clone(), ..]).select(Axis(1), &cols);
-            standardise(&mut b);
-            b
+            let data = a.as_slice().expect("fields are kept in standard layout");
+            Array2::from_shape_vec((n_rows, n_cols), cut(data, 1))
+                .expect("the block's shape holds its values")
         };
         Fields {
             grid: self.grid.subset(sel),
