@@ -7,7 +7,7 @@
 // rules from meeting the page's or the other picture's.
 
 import {
-  clampToPlot, geometry, insidePlot, requestBox, toLonLat, toPoint, unwrapBox,
+  boxMeetsGrid, clampToPlot, geometry, insidePlot, requestBox, toLonLat, toPoint, unwrapBox,
 } from "/assets/geo.js";
 
 const $ = (id) => document.getElementById(id);
@@ -273,6 +273,8 @@ async function chooseDataset(name, wanted = {}) {
   bottom.disabled = levels.length < 2;
   fillTops(wanted.top);
   $("box-submit").disabled = false;
+  // A box chosen on another dataset is kept only where it meets this one's grid.
+  if (state.bbox && !boxMeetsGrid(doc.grid, state.bbox)) clearBox();
   await Promise.all([loadMap(), state.bbox ? loadProfile() : null]);
 }
 
@@ -458,6 +460,19 @@ function setBox(bbox) {
   drawBox();
 }
 
+/** Forgets the chosen box and its profile. */
+function clearBox() {
+  state.bbox = null;
+  for (const id of ["west", "south", "east", "north"]) $(id).value = "";
+  for (const kind of ["profile", "hodograph"]) {
+    inflight.get(kind)?.abort();
+    setError(kind, "", null);
+  }
+  $("results").hidden = true;
+  clearPicture($("hodograph"));
+  drawBox();
+}
+
 function boxFromFields(event) {
   event.preventDefault();
   const [w, s, e, n] = ["west", "south", "east", "north"].map((id) => Number($(id).value));
@@ -537,7 +552,9 @@ function showProfile(doc) {
     return tr;
   });
   $("levels").tBodies[0].replaceChildren(...levels);
-  $("results").hidden = false;
+  const results = $("results");
+  results.dataset.bbox = doc.bbox.join(",");
+  results.hidden = false;
 }
 
 // ---- events --------------------------------------------------------------------------

@@ -79,3 +79,19 @@ export function unwrapBox(m, [w, , e]) {
   const west = overlap(first - 360) > overlap(first) ? first - 360 : first;
   return [west, west + width];
 }
+
+/** The eastward distance from longitude `a` to longitude `b`, in [0, 360). */
+const eastward = (a, b) => (((b - a) % 360) + 360) % 360;
+
+/**
+ * Whether a sent box [W, S, E, N] and a dataset's grid share any area: `grid` as the dataset
+ * document gives it (lat_min, lat_max, lon_first, lon_last, periodic), edges included.
+ */
+export function boxMeetsGrid(grid, [w, s, e, n]) {
+  if (s > grid.lat_max || n < grid.lat_min) return false;
+  if (grid.periodic || e - w >= 360) return true;
+  // Two arcs of the circle meet when the start of one lies on the other.
+  const box = eastward(w, e);
+  const span = eastward(grid.lon_first, grid.lon_last);
+  return eastward(w, grid.lon_first) <= box || eastward(grid.lon_first, w) <= span;
+}

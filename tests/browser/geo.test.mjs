@@ -107,3 +107,22 @@ test("a sent box unwraps to where it overlaps the map the most", () => {
   check(pacific, [130, 0, 140, 10], [130, 140]);
   check(pacific, [170, 20, -160, 50], [170, 200]);
 });
+
+test("a box is kept for another dataset only where it meets the grid", () => {
+  // The grids of the dataset documents of the demo and of fixtures/antimeridian_360day.nc.
+  const demoGrid = { lat_min: 20, lat_max: 80, lon_first: -60, lon_last: 40, periodic: false };
+  const across = { lat_min: -40, lat_max: 10, lon_first: 140, lon_last: -120, periodic: false };
+  const global = { lat_min: -90, lat_max: 90, lon_first: 0, lon_last: 355, periodic: true };
+  assert.ok(geo.boxMeetsGrid(demoGrid, [-25, 47, 0, 62]));
+  assert.ok(geo.boxMeetsGrid(demoGrid, [-70, 10, -60, 20]), "edges touch");
+  assert.ok(!geo.boxMeetsGrid(demoGrid, [-25, 5, 0, 10]), "south of the grid");
+  assert.ok(!geo.boxMeetsGrid(demoGrid, [170, 47, -170, 62]), "the other side of the globe");
+  assert.ok(geo.boxMeetsGrid(demoGrid, [30, 47, -50, 62]), "all round but a gap inside the grid");
+  assert.ok(geo.boxMeetsGrid(across, [170, -20, -160, -5]), "across the antimeridian");
+  assert.ok(geo.boxMeetsGrid(across, [-130, -20, -100, -5]), "the grid's east end");
+  assert.ok(geo.boxMeetsGrid(across, [100, -20, 150, -5]), "the grid's west end");
+  assert.ok(!geo.boxMeetsGrid(across, [-25, -20, 0, -5]), "outside its longitudes");
+  assert.ok(!geo.boxMeetsGrid(across, [-25, 47, 0, 62]), "the demo's box");
+  assert.ok(geo.boxMeetsGrid(global, [-25, 47, 0, 62]), "a periodic grid, any longitude");
+  assert.ok(geo.boxMeetsGrid(demoGrid, [0, 30, 360, 40]), "the whole circle");
+});

@@ -28,15 +28,17 @@ trap 'stop_server || true' EXIT
 
 # The demo dataset (invented data), made by the fixture generator once and reused.
 [ -f "$data/kestrel_gap.nc" ] || "$fixtures_bin" demo "$data" >/dev/null
+# Beside it, a committed fixture whose grid runs through the antimeridian.
 cat >"$work/serve.toml" <<TOML
 [datasets]
 demo = "$data/kestrel_gap.nc"
+across = "$root/fixtures/antimeridian_360day.nc"
 TOML
 start_server "$work/serve.toml"
 
 start=$(date +%s)
 status=0
-node "$here/page.mjs" "$base" "$work" demo || status=$?
+node "$here/page.mjs" "$base" "$work" demo across || status=$?
 stop_server || { echo "browser: the service did not stop cleanly" >&2; status=1; }
 fivexx=$(grep -c 'status=5[0-9][0-9]' "$work/serve.log" || true)
 [ "$fivexx" -eq 0 ] || { echo "browser: $fivexx answers were 5xx (log: $work/serve.log)" >&2; status=1; }
