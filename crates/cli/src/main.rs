@@ -1,5 +1,6 @@
 //! The `shearbox` command line: inspect a file, profile a box, compute every diagnostic of
-//! many files into CF NetCDF (`compute`), and join the parts of a sharded run (`join`).
+//! many files into CF NetCDF (`compute`), join the parts of a sharded run (`join`), and draw
+//! the hodograph and layer map as SVG (`plot`).
 //!
 //! Every command reads through `shearbox-cf`, computes with `shearbox-core`, and prints the
 //! documents of `shearbox-server::wire`, so what the command line prints is what the service
@@ -8,6 +9,7 @@
 mod args;
 mod compute;
 mod join;
+mod plot;
 mod staging;
 mod table;
 
@@ -78,6 +80,8 @@ enum Command {
     Compute(compute::ComputeArgs),
     /// Join the parts of a sharded `compute` run along time into one file.
     Join(join::JoinArgs),
+    /// Draw the hodograph and the layer map of boxes as SVG files, per region and time.
+    Plot(plot::PlotArgs),
     /// Serve box queries over HTTP as JSON (the demo dataset when no data is given).
     Serve {
         /// A TOML configuration file: datasets, bind address, cache size, limits, CORS origins
@@ -138,6 +142,7 @@ fn run(cli: Cli) -> Result<()> {
     match cli.command {
         Command::Compute(args) => compute::run(args)?,
         Command::Join(args) => join::run(args)?,
+        Command::Plot(args) => plot::run(args)?,
         Command::Serve { config, data, bind } => {
             shearbox_server::app::serve_blocking(&shearbox_server::app::ServeOptions {
                 config,
