@@ -426,6 +426,8 @@ async fn openapi_document_is_valid_and_covers_every_route() {
         "/v1/datasets/{name}",
         "/v1/datasets/{name}/profile",
         "/v1/datasets/{name}/layer",
+        "/v1/datasets/{name}/hodograph.svg",
+        "/v1/datasets/{name}/map.svg",
         "/healthz",
         "/readyz",
         "/metrics",
