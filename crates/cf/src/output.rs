@@ -399,6 +399,18 @@ impl DiagnosticsLayout {
     /// # Panics
     /// If `diag` was not computed for this layout's grid and layers.
     pub fn step_values(&self, diag: &Diagnostics) -> Vec<(String, Vec<f32>)> {
+        let mut values = Vec::new();
+        self.step_values_into(diag, &mut values);
+        values
+    }
+
+    /// [`Self::step_values`] into the buffers of `values` (for example those
+    /// [`crate::write::OutputFile::write_step_returning`] gave back), which are reused where
+    /// they hold the same variables in the same order and replaced otherwise.
+    ///
+    /// # Panics
+    /// As [`Self::step_values`].
+    pub fn step_values_into(&self, diag: &Diagnostics, values: &mut Vec<(String, Vec<f32>)>) {
         assert_eq!(diag.layers.len(), self.layers_hpa.len(), "diagnostics of other layers");
         let n_lon = self.lon.len();
         let n_cells = self.n_cells();
@@ -415,9 +427,17 @@ impl DiagnosticsLayout {
             }
             debug_assert_eq!(out.len() % n_lon, 0);
         };
-        let mut values = Vec::new();
-        for name in self.variable_names() {
-            let mut out = Vec::with_capacity(n_cells * diag.layers.len().max(diag.levels.len()));
+        let names = self.variable_names();
+        let reusable = values.len() == names.len()
+            && values.iter().zip(&names).all(|((have, _), want)| have == *want);
+        if !reusable {
+            values.clear();
+        }
+        let mut old = std::mem::take(values).into_iter();
+        for name in names {
+            let mut out = old.next().map(|(_, v)| v).unwrap_or_default();
+            out.clear();
+            out.reserve(n_cells * diag.layers.len().max(diag.levels.len()));
             if name.starts_with("geostrophic_") {
                 for lv in &diag.levels {
                     append(
@@ -445,6 +465,5 @@ impl DiagnosticsLayout {
             }
             values.push((name.to_string(), out));
         }
-        values
     }
 }

@@ -426,8 +426,19 @@ impl OutputFile {
     pub fn write_step(
         &mut self,
         time_value: f64,
-        mut values: Vec<(String, Vec<f32>)>,
+        values: Vec<(String, Vec<f32>)>,
     ) -> Result<(), CfError> {
+        self.write_step_returning(time_value, values).map(drop)
+    }
+
+    /// [`Self::write_step`], giving the value buffers back (emptied, with their capacity) for
+    /// the next step to fill: a run over many steps then allocates them once instead of
+    /// faulting in fresh pages every step.
+    pub fn write_step_returning(
+        &mut self,
+        time_value: f64,
+        mut values: Vec<(String, Vec<f32>)>,
+    ) -> Result<Vec<(String, Vec<f32>)>, CfError> {
         let bad = |what: String| CfError::Write { file: self.path.clone(), what, source: None };
         let time_dim = self.header.time_dim.clone();
         let expected: Vec<&VarDef> = self
@@ -466,12 +477,13 @@ impl OutputFile {
         let (path, t) = (self.path.clone(), self.steps);
         let (result, backend) = match backend {
             Backend::Library(file) => {
-                let (result, file) = io::run(move || {
+                let (result, file, returned) = io::run(move || {
                     let mut file = file;
                     let result = put_step(&mut file, &time_dim, t, time_value, &values);
-                    (result, file)
+                    (result, file, values)
                 })
                 .map_err(io_err(&path, "writing a time step"))?;
+                values = returned;
                 (
                     result.map_err(|e| CfError::Write {
                         file: path.clone(),
@@ -485,12 +497,14 @@ impl OutputFile {
                 // Shuffle and deflate every chunk on all cores, off the library's lock; the
                 // netCDF thread only appends the bytes.
                 let mut ordered: Vec<Vec<f32>> = Vec::with_capacity(values.len());
+                let mut slots: Vec<usize> = Vec::with_capacity(values.len());
                 for i in 0..values.len() {
                     let name = direct.var_name(i).to_string();
                     let at = values.iter().position(|(n, _)| *n == name).ok_or_else(|| {
                         bad(format!("variable {name} is missing from the time step"))
                     })?;
                     ordered.push(std::mem::take(&mut values[at].1));
+                    slots.push(at);
                 }
                 let level = direct.level();
                 let jobs: Vec<(usize, usize, usize)> = (0..ordered.len())
@@ -503,7 +517,9 @@ impl OutputFile {
                     .par_iter()
                     .map(|&(i, k, len)| chunks::encode(&ordered[i][k * len..(k + 1) * len], level))
                     .collect();
-                drop(ordered);
+                for (buffer, at) in ordered.into_iter().zip(slots) {
+                    values[at].1 = buffer;
+                }
                 let mut grouped: Vec<Vec<chunks::Encoded>> = vec![Vec::new(); values.len()];
                 for ((i, _, _), e) in jobs.iter().zip(encoded) {
                     grouped[*i].push(e);
@@ -524,7 +540,10 @@ impl OutputFile {
         self.file = Some(backend);
         result?;
         self.steps += 1;
-        Ok(())
+        for (_, buffer) in &mut values {
+            buffer.clear();
+        }
+        Ok(values)
     }
 
     /// Flushes and closes the file.

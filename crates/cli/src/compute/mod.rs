@@ -425,6 +425,8 @@ fn pipeline(
 ) -> Result<Totals> {
     let (in_tx, in_rx) = sync_channel::<(Step, Result<Fields, CfError>)>(0);
     let (out_tx, out_rx) = sync_channel::<StepOutput>(0);
+    // The writer hands each step's value buffers back for the next step to fill.
+    let (spare_tx, spare_rx) = sync_channel::<Vec<(String, Vec<f32>)>>(1);
     let mut totals = Totals::default();
     std::thread::scope(|scope| -> Result<()> {
         scope.spawn(move || {
@@ -441,7 +443,9 @@ fn pipeline(
         });
         let writer = scope.spawn(move || -> Result<()> {
             for step in out_rx {
-                output.write_step(step.time_value, step.values)?;
+                let spare = output.write_step_returning(step.time_value, step.values)?;
+                // Nobody may want it any more (the last step): then it is dropped here.
+                let _ = spare_tx.try_send(spare);
                 if let Some(s) = sides.as_mut() {
                     for (name, doc) in &step.profiles {
                         s.append(name, doc)?;
@@ -490,7 +494,8 @@ fn pipeline(
                     profiles.push((r.name.clone(), ProfileDoc::new(&name, &step.iso, &r.bbox, &p)));
                 }
                 drop(fields);
-                let values = layout.step_values(&diag);
+                let mut values = spare_rx.try_recv().unwrap_or_default();
+                layout.step_values_into(&diag, &mut values);
                 let out =
                     StepOutput { time_value: layout.time_value(step.instant), values, profiles };
                 if out_tx.send(out).is_err() {
