@@ -537,6 +537,34 @@ fn map_across_the_antimeridian_is_continuous() {
     assert!(labels.iter().any(|l| l.ends_with("°N")), "{labels:?}");
 }
 
+/// A box cut from a block that wraps the whole circle: its columns come in box order and
+/// are unwrapped again, so the picture is continuous across the block's seam.
+#[test]
+fn a_selection_across_the_seam_of_a_circle_is_continuous() {
+    let lat: Vec<f64> = (0..6).map(|j| 40.0 + 10.0 * j as f64).collect();
+    let lon: Vec<f64> = (0..36).map(|i| 10.0 * i as f64).collect();
+    let a = Array2::from_shape_fn((6, 36), |(j, i)| (1000 * j + i) as f32);
+    let wind = Array2::from_elem((6, 36), 10.0_f32);
+    let block =
+        LayerField::new(&lat, &lon, a.view(), (wind.view(), wind.view()), a.view(), (850.0, 300.0))
+            .unwrap();
+    let field = block.select(1..4, &[34, 35, 0, 1, 2]).unwrap();
+    assert_eq!(field.lon(), [-20.0, -10.0, 0.0, 10.0, 20.0]);
+    assert_eq!(field.lat(), [50.0, 60.0, 70.0]);
+    assert_eq!(field.extent(), [-25.0, 45.0, 25.0, 75.0]);
+    let svg = map_svg(&field, &caption(), &MapOptions::default()).unwrap();
+    let doc = parse(&svg);
+    let arrows: Vec<(f64, f64)> = with_class(&doc, "g", "arrow")
+        .iter()
+        .map(|a| (attr(a, "data-lat"), attr(a, "data-lon")))
+        .collect();
+    let want: Vec<(f64, f64)> = [50.0, 60.0, 70.0]
+        .iter()
+        .flat_map(|&la| [-20.0, -10.0, 0.0, 10.0, 20.0].map(|lo| (la, lo)))
+        .collect();
+    assert_eq!(arrows, want);
+}
+
 #[test]
 fn bad_inputs_are_typed_errors() {
     let data = synthetic(-20.0, 30, 40);
