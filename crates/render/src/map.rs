@@ -405,13 +405,13 @@ fn header(
         caption.dataset
     );
     let time = if caption.time.is_empty() { "(no time coordinate)" } else { caption.time };
-    let sub = format!(
-        "{time} · {}–{}, {}–{} · {rows} × {cols} grid cells",
-        lon_label(w),
-        lon_label(e),
-        lat_label(s),
-        lat_label(n)
-    );
+    let lons = if e - w >= 360.0 - 1e-9 {
+        "all longitudes".to_string()
+    } else {
+        format!("{}–{}", lon_label(w), lon_label(e))
+    };
+    let sub =
+        format!("{time} · {lons}, {}–{} · {rows} × {cols} grid cells", lat_label(s), lat_label(n));
     let big = anchored(font(18.0, palette::INK), HPos::Left, VPos::Top);
     let small = anchored(font(13.0, palette::INK), HPos::Left, VPos::Top);
     sheet.element("text", &[("class", "title".into())], |a| {
@@ -707,12 +707,15 @@ fn footer(
 ) -> Result<(), RenderError> {
     let (l, _, r, b) = frame.px;
     let y = b + 44;
+    let cells = if stride == 1 {
+        "in every cell".to_string()
+    } else {
+        format!("every {stride}{} cell", ordinal(stride))
+    };
     let note = format!(
-        "Contours: thickness every {} m (labels in m). Arrows: thermal wind, every {}{} cell. \
+        "Contours: thickness every {} m (labels in m). Arrows: thermal wind, {cells}. \
          Shading: layer-mean temperature gradient.",
-        num(interval, 2),
-        stride,
-        ordinal(stride)
+        num(interval, 2)
     );
     let quiet = anchored(font(11.0, palette::INK), HPos::Left, VPos::Center);
     sheet.element("text", &[("class", "note".into())], |a| {
