@@ -1,6 +1,6 @@
-//! The query strings of the box routes (`bbox`, `time`, `bottom`, `top`, `grid`, `stride` and
-//! anything else a client sends), through the whole service on a committed fixture: every
-//! answer is a result or a 4xx, never a panic or a 5xx.
+//! The query strings of the box routes and the pictures (`bbox`, `time`, `bottom`, `top`,
+//! `grid`, `stride` and anything else a client sends), through the whole service on a
+//! committed fixture: every answer is a result or a 4xx, never a panic or a 5xx.
 #![no_main]
 
 use std::sync::OnceLock;
@@ -35,7 +35,7 @@ fn service() -> &'static (tokio::runtime::Runtime, Router) {
 fuzz_target!(|data: &[u8]| {
     let Ok(text) = std::str::from_utf8(data) else { return };
     let (runtime, router) = service();
-    for route in ["profile", "layer"] {
+    for route in ["profile", "layer", "hodograph.svg", "map.svg"] {
         let uri = format!("/v1/datasets/tidy/{route}?{text}");
         let Ok(request) = Request::get(uri.as_str()).body(Body::empty()) else { return };
         let response = runtime.block_on(router.clone().oneshot(request)).expect("an answer");
