@@ -342,6 +342,7 @@ impl ServeOptions {
 /// `SHEARBOX_LOG`, e.g. `debug`, default `info`), opens the datasets, binds, and prints
 /// `listening on http://ADDR`.
 pub fn serve_blocking(options: &ServeOptions) -> Result<(), ServeError> {
+    crate::memory::limit_malloc_arenas();
     init_logging();
     let config = options.config()?;
     let runtime = tokio::runtime::Builder::new_multi_thread()

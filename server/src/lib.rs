@@ -13,12 +13,15 @@
 //!
 //! - [`app::app`] builds the router from the state ([`state::AppState`]) with no socket;
 //!   [`app::run`] serves it on a listener until a shutdown future completes.
-//! - Files are opened once ([`catalog`]); a box query reads only the box plus a one-cell halo
-//!   at one time step, on a blocking thread (every netCDF call then runs on the reader's own
+//! - Files are opened once ([`catalog`]), from their headers alone; a box query reads its time
+//!   step whole when the step is small beside the cache (later boxes of it are cut from
+//!   that), otherwise only the box plus a one-cell halo, on a blocking thread (every netCDF call then runs on the reader's own
 //!   I/O thread), computes there, and never on the async workers. A semaphore bounds the work
 //!   running at once and a queue limit turns excess requests into `503` with `Retry-After`
 //!   ([`state::WorkGate`]).
-//! - Decoded inputs and finished answers are kept in an LRU bounded in bytes ([`cache`]).
+//! - Decoded inputs and finished answers are kept in an LRU bounded in bytes ([`cache`]);
+//!   glibc's allocator is held to one arena per core so freed buffers do not pile up
+//!   ([`memory`]).
 //! - Changed files are reloaded in the background and swapped in atomically once they open
 //!   and validate; requests in flight finish on the file they started with.
 //! - Each connection lives under time and size limits ([`conn`]): a slow client cannot hold
@@ -35,6 +38,7 @@ pub mod catalog;
 pub mod config;
 pub mod conn;
 pub mod error;
+pub mod memory;
 pub mod metrics;
 pub mod page;
 pub mod pictures;

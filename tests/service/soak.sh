@@ -7,7 +7,9 @@
 #     under the cache bound plus $SHEARBOX_SOAK_MARGIN_MB (default 224: about 30 MiB at start;
 #     the netCDF library's own chunk cache, up to the file's 67 MB decoded; 256 connections;
 #     the two box queries in flight and their answers; with cache_mb = 0 the same load levels
-#     off at about 140 MiB, and runs with the cache have peaked at 219 to 235 MiB);
+#     off at about 140 MiB; runs with the cache peaked at 219 to 235 MiB reading boxes, and at
+#     248 to 255 MiB since time steps are read whole for the cache, with the allocator held
+#     to one arena per core: 307 MiB without that, see server/src/memory.rs);
 #   - afterwards /healthz and /readyz answer 200, no query is in flight, the connections are
 #     closed, and SIGTERM stops the service cleanly.
 #
