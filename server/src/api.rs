@@ -388,30 +388,40 @@ async fn box_query(
     if not_modified(headers, &tag) {
         return tagged(&state, headers, &tag, || Ok(Bytes::new()));
     }
-    let key = CacheKey::Answer { generation: loaded.generation, request: canonical };
-    let body = match state.cache.get(&key) {
-        Some(Cached::Answer(body)) => {
-            Metrics::add(&state.metrics.cache_hits, 1);
-            body
-        }
-        _ => {
-            Metrics::add(&state.metrics.cache_misses, 1);
-            let worker = state.clone();
-            let timeout = Duration::from_secs_f64(state.config.limits.request_timeout_secs);
-            let body = state
-                .gate
-                .run(timeout, move || answer(&worker, &loaded, &request, &plan, grid))
-                .await
-                .inspect_err(|e| {
-                    if *e == ApiError::Overloaded {
-                        Metrics::add(&state.metrics.rejected, 1);
-                    }
-                })??;
-            state.cache.insert(key, Cached::Answer(body.clone()));
-            body
-        }
-    };
+    let generation = loaded.generation;
+    let worker = state.clone();
+    let body = cached_answer(&state, generation, canonical, move || {
+        answer(&worker, &loaded, &request, &plan, grid)
+    })
+    .await?;
     tagged(&state, headers, &tag, || Ok(body))
+}
+
+/// The answer kept under `canonical` in the cache, or made by `work` on a blocking thread
+/// through the work gate and then kept.
+pub(crate) async fn cached_answer<F>(
+    state: &AppState,
+    generation: u64,
+    canonical: String,
+    work: F,
+) -> Result<Bytes, ApiError>
+where
+    F: FnOnce() -> Result<Bytes, ApiError> + Send + 'static,
+{
+    let key = CacheKey::Answer { generation, request: canonical };
+    if let Some(Cached::Answer(body)) = state.cache.get(&key) {
+        Metrics::add(&state.metrics.cache_hits, 1);
+        return Ok(body);
+    }
+    Metrics::add(&state.metrics.cache_misses, 1);
+    let timeout = Duration::from_secs_f64(state.config.limits.request_timeout_secs);
+    let body = state.gate.run(timeout, work).await.inspect_err(|e| {
+        if *e == ApiError::Overloaded {
+            Metrics::add(&state.metrics.rejected, 1);
+        }
+    })??;
+    state.cache.insert(key, Cached::Answer(body.clone()));
+    Ok(body)
 }
 
 /// The inputs of a plan, from the cache or the file. Runs on a blocking thread.

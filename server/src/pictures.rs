@@ -12,8 +12,6 @@
 //! more arrow cells than the service's grid limit (or [`shearbox_render::MAX_ARROWS`]) is
 //! answered `413` with a stride that fits, as `/layer` does for its grid.
 
-use std::time::Duration;
-
 use axum::body::{Body, Bytes};
 use axum::extract::{RawQuery, State};
 use axum::http::{HeaderMap, HeaderValue, StatusCode, header};
@@ -23,13 +21,11 @@ use shearbox_render::{
 };
 
 use crate::api::{
-    DatasetName, cache_headers, etag, inputs, not_modified, params, parse_bbox, parse_hpa,
-    parse_stride, parse_time,
+    DatasetName, cache_headers, cached_answer, etag, inputs, not_modified, params, parse_bbox,
+    parse_hpa, parse_stride, parse_time,
 };
-use crate::cache::{CacheKey, Cached};
 use crate::catalog::Loaded;
 use crate::error::ApiError;
-use crate::metrics::Metrics;
 use crate::query::{self, Plan, ProfileRequest};
 use crate::state::AppState;
 use crate::wire::ErrorDoc;
@@ -139,29 +135,12 @@ async fn picture(
     if not_modified(headers, &tag) {
         return Ok(svg_response(&state, &tag, None));
     }
-    let key = CacheKey::Answer { generation: loaded.generation, request: canonical };
-    let body = match state.cache.get(&key) {
-        Some(Cached::Answer(body)) => {
-            Metrics::add(&state.metrics.cache_hits, 1);
-            body
-        }
-        _ => {
-            Metrics::add(&state.metrics.cache_misses, 1);
-            let worker = state.clone();
-            let timeout = Duration::from_secs_f64(state.config.limits.request_timeout_secs);
-            let body = state
-                .gate
-                .run(timeout, move || draw(&worker, &loaded, &request, &plan, picture))
-                .await
-                .inspect_err(|e| {
-                    if *e == ApiError::Overloaded {
-                        Metrics::add(&state.metrics.rejected, 1);
-                    }
-                })??;
-            state.cache.insert(key, Cached::Answer(body.clone()));
-            body
-        }
-    };
+    let generation = loaded.generation;
+    let worker = state.clone();
+    let body = cached_answer(&state, generation, canonical, move || {
+        draw(&worker, &loaded, &request, &plan, picture)
+    })
+    .await?;
     Ok(svg_response(&state, &tag, Some(body)))
 }
 
