@@ -4,22 +4,14 @@
 //! reader: the fixture catalogue (fixtures/README.md, what the generator was asked to write)
 //! and netCDF-C's own `ncdump`, which prints the coordinate values as stored.
 
-use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
+use std::path::Path;
+use std::process::Command;
 
 use serde_json::Value;
 
-fn root() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("../..")
-}
+mod common;
 
-fn fixture(name: &str) -> PathBuf {
-    root().join("fixtures").join(name)
-}
-
-fn shearbox(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_shearbox")).args(args).output().expect("binary runs")
-}
+use common::{fixture, shearbox};
 
 fn ok_json(args: &[&str]) -> Value {
     let out = shearbox(args);

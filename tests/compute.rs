@@ -9,24 +9,16 @@
 
 use std::io::{BufRead, BufReader};
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output, Stdio};
+use std::process::{Command, Stdio};
 use std::sync::OnceLock;
 
 use shearbox_cf::write::PartFile;
 use shearbox_cf::{Dataset, VarOverrides};
 use shearbox_core::{Config, compute};
 
-fn root() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("../..")
-}
+mod common;
 
-fn fixture(name: &str) -> PathBuf {
-    root().join("fixtures").join(name)
-}
-
-fn shearbox(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_shearbox")).args(args).output().expect("binary runs")
-}
+use common::{fixture, shearbox};
 
 fn ok(args: &[&str]) -> String {
     let out = shearbox(args);

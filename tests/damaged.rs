@@ -12,9 +12,9 @@ use std::path::{Path, PathBuf};
 use std::process::{Command, Stdio};
 use std::time::{Duration, Instant};
 
-fn root() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("../..")
-}
+mod common;
+
+use common::root;
 
 const FIXTURES: [&str; 8] = [
     "tidy_nc4.nc",

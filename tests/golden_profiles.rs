@@ -10,16 +10,16 @@
 //! plus a small absolute floor per unit, far below any meteorologically meaningful difference
 //! and far above the f32 noise. Counts, strings and null-ness must match exactly.
 
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 
 use serde_json::Value;
 use shearbox_cf::{Dataset, Role, TimeSelector, VarOverrides};
 use shearbox_core::{BBox, Config};
 use shearbox_server::query::{self, ProfileRequest};
 
-fn root() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("../..")
-}
+mod common;
+
+use common::root;
 
 /// Absolute tolerance for a field, by its unit suffix.
 fn abs_tol(key: &str) -> f64 {

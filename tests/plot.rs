@@ -3,19 +3,15 @@
 //! as XML (roxmltree, an XML 1.0 parser) and checked against `shearbox profile` for the same
 //! box and time, and the errors of bad boxes, levels, times and files.
 
-use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
+use std::path::Path;
+use std::process::Output;
 
 use roxmltree::{Document, Node};
 use serde_json::Value;
 
-fn fixture(name: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("../../fixtures").join(name)
-}
+mod common;
 
-fn shearbox(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_shearbox")).args(args).output().expect("binary runs")
-}
+use common::{fixture, shearbox};
 
 fn ok(args: &[&str]) -> Output {
     let out = shearbox(args);

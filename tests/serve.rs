@@ -3,7 +3,7 @@
 //! prints for the same file, box, time and layer.
 
 use std::io::{BufRead, BufReader};
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::process::{Child, Command, Stdio};
 use std::sync::mpsc;
 use std::sync::{Arc, Mutex};
@@ -11,13 +11,9 @@ use std::time::Duration;
 
 use serde_json::Value;
 
-fn root() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("../..")
-}
+mod common;
 
-fn fixture(name: &str) -> PathBuf {
-    root().join("fixtures").join(name)
-}
+use common::{fixture, root};
 
 /// A running `shearbox serve` and the lines it has logged.
 struct Served {
