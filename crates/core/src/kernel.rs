@@ -202,8 +202,7 @@ fn compute_into_on(
             "layer {l:?} is not a layer of these levels"
         );
     }
-    let mut ctx = Context::new(fields, cfg);
-    ctx.avx2 = avx2;
+    let ctx = Context::new(fields, cfg, avx2);
     ctx.prepare(out, layers);
     let jobs = ctx.split(out);
     match par {
@@ -395,7 +394,7 @@ mod num_zero {
 }
 
 impl<'a> Context<'a> {
-    fn new(fields: &'a Fields, cfg: &'a Config) -> Self {
+    fn new(fields: &'a Fields, cfg: &'a Config, avx2: bool) -> Self {
         let grid = fields.grid();
         let c = &cfg.constants;
         let coriolis = grid.lat().iter().map(|&p| c.coriolis(p)).collect();
@@ -422,7 +421,7 @@ impl<'a> Context<'a> {
             col_inv_delta,
             n_lat: grid.n_lat(),
             n_lon: grid.n_lon(),
-            avx2: false,
+            avx2,
         }
     }
 
