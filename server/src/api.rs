@@ -441,8 +441,7 @@ pub(crate) fn inputs(
         rows: (plan.block.rows.start, plan.block.rows.end),
         cols: (plan.block.cols.start, plan.block.cols.len),
     };
-    if let Some(Cached::Inputs(fields)) = state.cache.get(&key) {
-        Metrics::add(&state.metrics.cache_hits, 1);
+    if let Some(fields) = cached_inputs(state, &key) {
         return Ok(fields);
     }
     Metrics::add(&state.metrics.cache_misses, 1);
@@ -462,13 +461,12 @@ const STEP_SHARE: usize = 4;
 /// many requests want it at the same moment).
 fn whole_step(state: &AppState, loaded: &Loaded, time_idx: usize) -> Result<Arc<Fields>, ApiError> {
     let key = CacheKey::Step { generation: loaded.generation, time_idx };
-    if let Some(Cached::Inputs(fields)) = state.cache.get(&key) {
-        Metrics::add(&state.metrics.cache_hits, 1);
+    if let Some(fields) = cached_inputs(state, &key) {
         return Ok(fields);
     }
     let _one_reader = loaded.step_reads.lock().unwrap_or_else(std::sync::PoisonError::into_inner);
-    if let Some(Cached::Inputs(fields)) = state.cache.get(&key) {
-        Metrics::add(&state.metrics.cache_hits, 1);
+    // Another request may have read the step while this one waited for the lock.
+    if let Some(fields) = cached_inputs(state, &key) {
         return Ok(fields);
     }
     Metrics::add(&state.metrics.cache_misses, 1);
@@ -479,6 +477,13 @@ fn whole_step(state: &AppState, loaded: &Loaded, time_idx: usize) -> Result<Arc<
     let fields = Arc::new(checked_read(state, loaded, fields)?);
     state.cache.insert(key, Cached::Inputs(Arc::clone(&fields)));
     Ok(fields)
+}
+
+/// Decoded inputs kept under `key`, counted as a cache hit when found.
+fn cached_inputs(state: &AppState, key: &CacheKey) -> Option<Arc<Fields>> {
+    let Some(Cached::Inputs(fields)) = state.cache.get(key) else { return None };
+    Metrics::add(&state.metrics.cache_hits, 1);
+    Some(fields)
 }
 
 /// `fields` as read, unless the file was rewritten in place meanwhile; counts the bytes.
