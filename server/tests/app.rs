@@ -7,9 +7,8 @@
 use std::collections::BTreeSet;
 
 use axum::Router;
-use axum::body::{Body, Bytes};
-use axum::http::{HeaderMap, Method, Request, StatusCode, header};
-use http_body_util::BodyExt;
+use axum::body::Body;
+use axum::http::{Method, Request, StatusCode, header};
 use serde_json::Value;
 use shearbox_cf::{Dataset, TimeSelector, VarOverrides};
 use shearbox_core::{BBox, Config};
@@ -17,40 +16,13 @@ use shearbox_server::app::{app, openapi};
 use shearbox_server::config::ServeConfig;
 use shearbox_server::query::{self, ProfileRequest};
 use shearbox_server::state::AppState;
-use tower::ServiceExt;
-
 mod common;
 
-use common::{config, fixtures};
+use common::{config, fixtures, get, send};
 
 fn service(extra: &str) -> (AppState, Router) {
     let state = AppState::new(config(extra));
     (state.clone(), app(state))
-}
-
-struct Answer {
-    status: StatusCode,
-    headers: HeaderMap,
-    body: Bytes,
-}
-
-impl Answer {
-    fn json(&self) -> Value {
-        serde_json::from_slice(&self.body)
-            .unwrap_or_else(|e| panic!("{e}: {}", String::from_utf8_lossy(&self.body)))
-    }
-}
-
-async fn send(router: &Router, request: Request<Body>) -> Answer {
-    let response = router.clone().oneshot(request).await.expect("the router answers");
-    let status = response.status();
-    let headers = response.headers().clone();
-    let body = response.into_body().collect().await.expect("a body").to_bytes();
-    Answer { status, headers, body }
-}
-
-async fn get(router: &Router, uri: &str) -> Answer {
-    send(router, Request::get(uri).body(Body::empty()).unwrap()).await
 }
 
 /// The JSON bytes of the document `query::profile` makes, the command line's path.

@@ -3,63 +3,14 @@
 mod common;
 
 use std::path::Path;
-use std::thread::JoinHandle;
 use std::time::Duration;
 
-use common::{config, fixtures};
+use common::{Server, config, fixtures};
 use serde_json::Value;
 use shearbox_cf::TimeSelector;
 use shearbox_core::BBox;
-use shearbox_server::app::run;
 use shearbox_server::config::ServeConfig;
 use shearbox_server::query::{self, ProfileRequest};
-use shearbox_server::state::AppState;
-
-struct Server {
-    base: String,
-    state: AppState,
-    stop: Option<tokio::sync::oneshot::Sender<()>>,
-    thread: Option<JoinHandle<std::io::Result<()>>>,
-}
-
-impl Server {
-    fn start(config: ServeConfig) -> Server {
-        let state = AppState::new(config);
-        let listener = std::net::TcpListener::bind("127.0.0.1:0").expect("a free port");
-        listener.set_nonblocking(true).unwrap();
-        let base = format!("http://{}", listener.local_addr().unwrap());
-        let (stop, stopped) = tokio::sync::oneshot::channel::<()>();
-        let serving = state.clone();
-        let thread = std::thread::spawn(move || {
-            let runtime = tokio::runtime::Builder::new_multi_thread()
-                .worker_threads(2)
-                .enable_all()
-                .build()?;
-            runtime.block_on(async move {
-                let listener = tokio::net::TcpListener::from_std(listener)?;
-                run(listener, serving, async {
-                    let _ = stopped.await;
-                })
-                .await
-            })
-        });
-        Server { base, state, stop: Some(stop), thread: Some(thread) }
-    }
-
-    /// Asks for shutdown and waits for `run` to return.
-    fn stop(&mut self) -> std::io::Result<()> {
-        if let Some(stop) = self.stop.take() {
-            let _ = stop.send(());
-        }
-        self.thread.take().map_or(Ok(()), |t| t.join().expect("the server thread ends"))
-    }
-}
-
-impl Drop for Server {
-    fn drop(&mut self) {
-        let _ = self.stop();
-    }
-}
 
 struct Reply {
     status: u16,
@@ -135,7 +86,7 @@ fn metric(text: &str, name: &str, labels: &str) -> f64 {
 fn every_endpoint_and_every_bad_request_over_http() {
     let mut server = Server::start(config(""));
     let agent = client();
-    let url = |path: &str| format!("{}{path}", server.base);
+    let url = |path: &str| format!("{}{path}", server.base());
 
     assert_eq!(fetch(&agent, &url("/healthz"), &[]).json()["status"], "ok");
     let ready = fetch(&agent, &url("/readyz"), &[]);
@@ -217,7 +168,7 @@ fn every_endpoint_and_every_bad_request_over_http() {
 
     server.stop().expect("a clean shutdown");
     assert!(
-        std::net::TcpStream::connect(server.base.trim_start_matches("http://")).is_err(),
+        std::net::TcpStream::connect(server.addr.as_str()).is_err(),
         "the port is closed after shutdown"
     );
 }
@@ -240,7 +191,7 @@ fn replaced_and_new_files_are_reloaded_and_a_broken_one_keeps_the_old() {
         "reload_interval_secs = 0.05\n[datasets]\nfile = \"current.nc\"\nseries = \"run_*.nc\"\n";
     let server = Server::start(ServeConfig::from_toml(text, dir.path()).unwrap());
     let agent = client();
-    let url = |path: &str| format!("{}{path}", server.base);
+    let url = |path: &str| format!("{}{path}", server.base());
     let last_time = |r: &Reply| r.json()["times"]["last"].as_str().unwrap_or("").to_string();
 
     let before = fetch(&agent, &url("/v1/datasets/file"), &[]);
@@ -300,7 +251,7 @@ fn replaced_and_new_files_are_reloaded_and_a_broken_one_keeps_the_old() {
 #[test]
 fn under_load_every_answer_is_a_result_or_a_503_and_the_service_stays_up() {
     let server = Server::start(config("cache_mb = 0\n[limits]\nmax_concurrent = 1\nmax_queue = 2"));
-    let base = server.base.clone();
+    let base = server.base();
     // 16 threads x 4 requests, each a different box, so that none is answered from the cache.
     let threads: Vec<_> = (0..16)
         .map(|t| {

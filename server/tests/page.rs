@@ -3,9 +3,8 @@
 //! `tests/browser/`.
 
 use axum::Router;
-use axum::body::{Body, Bytes};
-use axum::http::{HeaderMap, Request, StatusCode, header};
-use http_body_util::BodyExt;
+use axum::body::Body;
+use axum::http::{Request, StatusCode, header};
 use serde_json::Value;
 use shearbox_server::app::app;
 use shearbox_server::state::AppState;
@@ -13,21 +12,7 @@ use tower::ServiceExt;
 
 mod common;
 
-struct Answer {
-    status: StatusCode,
-    headers: HeaderMap,
-    body: Bytes,
-}
-
-impl Answer {
-    fn text(&self) -> &str {
-        std::str::from_utf8(&self.body).expect("UTF-8")
-    }
-
-    fn header(&self, name: header::HeaderName) -> &str {
-        self.headers.get(&name).and_then(|v| v.to_str().ok()).unwrap_or("")
-    }
-}
+use common::{Answer, get, send};
 
 fn service(extra: &str) -> Router {
     app(AppState::new(common::config(extra)))
@@ -38,16 +23,7 @@ async fn get_with(router: &Router, uri: &str, headers: &[(header::HeaderName, &s
     for (k, v) in headers {
         request = request.header(k, *v);
     }
-    let response =
-        router.clone().oneshot(request.body(Body::empty()).unwrap()).await.expect("an answer");
-    let status = response.status();
-    let headers = response.headers().clone();
-    let body = response.into_body().collect().await.expect("a body").to_bytes();
-    Answer { status, headers, body }
-}
-
-async fn get(router: &Router, uri: &str) -> Answer {
-    get_with(router, uri, &[]).await
+    send(router, request.body(Body::empty()).unwrap()).await
 }
 
 /// The values of `attr="…"` in `html`.

@@ -4,64 +4,32 @@
 //! segments, the gridded layer (`/layer?grid=true`) for the map's arrows.
 
 use axum::Router;
-use axum::body::{Body, Bytes};
-use axum::http::{HeaderMap, Request, StatusCode, header};
-use http_body_util::BodyExt;
+use axum::body::Body;
+use axum::http::{Request, StatusCode, header};
 use roxmltree::{Document, Node};
 use serde_json::Value;
 use shearbox_server::app::{app, openapi};
 use shearbox_server::state::AppState;
-use tower::ServiceExt;
-
 mod common;
 
-use common::config;
+use common::{Answer, config, get, send};
 
 fn service(extra: &str) -> Router {
     app(AppState::new(config(extra)))
 }
 
-struct Answer {
-    status: StatusCode,
-    headers: HeaderMap,
-    body: Bytes,
-}
-
-impl Answer {
-    fn json(&self) -> Value {
-        serde_json::from_slice(&self.body)
-            .unwrap_or_else(|e| panic!("{e}: {}", String::from_utf8_lossy(&self.body)))
-    }
-
-    fn text(&self) -> &str {
-        std::str::from_utf8(&self.body).expect("UTF-8")
-    }
-
-    /// A picture: 200, `image/svg+xml`, tagged.
-    fn svg(&self) -> Document<'_> {
-        assert_eq!(self.status, StatusCode::OK, "{}", String::from_utf8_lossy(&self.body));
-        assert_eq!(self.headers[header::CONTENT_TYPE], "image/svg+xml");
-        assert!(self.headers.contains_key(header::ETAG));
-        let doc = Document::parse(self.text()).expect("well-formed XML (XML 1.0)");
-        let root = doc.root_element();
-        assert!(root.has_tag_name("svg"));
-        assert!(root.attribute("viewBox").is_some());
-        let caution: Vec<String> = with_class(&doc, "text", "caution").iter().map(text).collect();
-        assert_eq!(caution, [shearbox_server::CAUTION]);
-        doc
-    }
-}
-
-async fn get(router: &Router, uri: &str) -> Answer {
-    get_with(router, Request::get(uri).body(Body::empty()).unwrap()).await
-}
-
-async fn get_with(router: &Router, request: Request<Body>) -> Answer {
-    let response = router.clone().oneshot(request).await.expect("the router answers");
-    let status = response.status();
-    let headers = response.headers().clone();
-    let body = response.into_body().collect().await.expect("a body").to_bytes();
-    Answer { status, headers, body }
+/// A picture: 200, `image/svg+xml`, tagged, well-formed, with the caution.
+fn svg(answer: &Answer) -> Document<'_> {
+    assert_eq!(answer.status, StatusCode::OK, "{}", String::from_utf8_lossy(&answer.body));
+    assert_eq!(answer.headers[header::CONTENT_TYPE], "image/svg+xml");
+    assert!(answer.headers.contains_key(header::ETAG));
+    let doc = Document::parse(answer.text()).expect("well-formed XML (XML 1.0)");
+    let root = doc.root_element();
+    assert!(root.has_tag_name("svg"));
+    assert!(root.attribute("viewBox").is_some());
+    let caution: Vec<String> = with_class(&doc, "text", "caution").iter().map(text).collect();
+    assert_eq!(caution, [shearbox_server::CAUTION]);
+    doc
 }
 
 fn with_class<'a, 'i>(doc: &'a Document<'i>, tag: &str, class: &str) -> Vec<Node<'a, 'i>> {
@@ -84,7 +52,7 @@ async fn hodograph_matches_the_profile_document() {
     for (bbox, time) in [("-10,40,10,55", "2026-01-14T06:00Z"), ("-40,20,30,70", "latest")] {
         let q = format!("bbox={bbox}&time={time}");
         let picture = get(&router, &format!("/v1/datasets/tidy/hodograph.svg?{q}")).await;
-        let doc = picture.svg();
+        let doc = svg(&picture);
         let profile = get(&router, &format!("/v1/datasets/tidy/profile?{q}")).await.json();
         let levels = profile["levels"].as_array().unwrap();
         let with_wind: Vec<f64> = levels
@@ -178,7 +146,7 @@ async fn map_arrows_are_the_gridded_layer_decimated() {
     for stride in [1, 2, 3] {
         let picture =
             get(&router, &format!("/v1/datasets/tidy/map.svg?{base}&stride={stride}")).await;
-        let doc = picture.svg();
+        let doc = svg(&picture);
         let layer =
             get(&router, &format!("/v1/datasets/tidy/layer?{base}&grid=true&stride={stride}"))
                 .await;
@@ -202,7 +170,7 @@ async fn map_defaults_to_the_whole_grid_and_crosses_the_antimeridian() {
     let router = service("");
     // The global fixture: 5° grid, poles included, longitudes 0..355, periodic.
     let whole = get(&router, "/v1/datasets/global/map.svg?bottom=850&top=300&stride=4").await;
-    let doc = whole.svg();
+    let doc = svg(&whole);
     assert_eq!(data_bbox(&doc), [-2.5, -90.0, 357.5, 90.0]);
     let layer = get(
         &router,
@@ -218,7 +186,7 @@ async fn map_defaults_to_the_whole_grid_and_crosses_the_antimeridian() {
 
     let across =
         get(&router, "/v1/datasets/global/map.svg?bottom=850&top=300&bbox=170,20,-170,60").await;
-    let doc = across.svg();
+    let doc = svg(&across);
     assert_eq!(data_bbox(&doc), [167.5, 17.5, 192.5, 62.5]);
     let lons: Vec<f64> = map_arrows(&doc).iter().map(|a| a.1).collect();
     assert!(lons.iter().any(|&l| l > 180.0) && lons.iter().all(|&l| l < 192.5), "{lons:?}");
@@ -257,7 +225,7 @@ async fn bad_picture_requests_are_json_errors() {
             let fits = body["error"]["stride"].as_u64().unwrap() as usize;
             assert!(21usize.div_ceil(fits) * 29usize.div_ceil(fits) <= 20);
             let ok = get(&router, &format!("{m}?bottom=1000&top=500&stride={fits}")).await;
-            ok.svg();
+            svg(&ok);
         }
     }
 }
@@ -267,9 +235,9 @@ async fn pictures_are_tagged_and_in_the_openapi_document() {
     let router = service("");
     let uri = "/v1/datasets/tidy/map.svg?bottom=850&top=300&bbox=-10,40,10,55";
     let first = get(&router, uri).await;
-    first.svg();
+    svg(&first);
     let tag = first.headers[header::ETAG].clone();
-    let again = get_with(
+    let again = send(
         &router,
         Request::get(uri).header(header::IF_NONE_MATCH, tag.clone()).body(Body::empty()).unwrap(),
     )

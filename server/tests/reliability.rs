@@ -12,17 +12,15 @@ use std::io::{Read, Write};
 use std::net::TcpStream;
 use std::path::Path;
 use std::sync::{Arc, Mutex, OnceLock};
-use std::thread::JoinHandle;
 use std::time::{Duration, Instant};
 
-use common::{config, fixtures};
+use common::{Server, config, fixtures};
 use serde_json::Value;
 use shearbox_cf::{Dataset, TimeSelector, VarOverrides};
 use shearbox_core::{BBox, Config};
-use shearbox_server::app::{exposure_warning, run};
+use shearbox_server::app::exposure_warning;
 use shearbox_server::config::ServeConfig;
 use shearbox_server::query::{self, ProfileRequest};
-use shearbox_server::state::AppState;
 
 /// Every line the service logged in this test binary.
 fn log() -> &'static Arc<Mutex<Vec<u8>>> {
@@ -58,52 +56,16 @@ fn log_lines(marker: &str) -> Vec<String> {
     text.lines().filter(|l| l.contains(marker)).map(str::to_string).collect()
 }
 
-struct Server {
-    addr: String,
-    state: AppState,
-    stop: Option<tokio::sync::oneshot::Sender<()>>,
-    thread: Option<JoinHandle<std::io::Result<()>>>,
+/// The service on a socket of its own, its log captured from the start.
+fn serve(config: ServeConfig) -> Server {
+    log();
+    Server::start(config)
 }
 
-impl Server {
-    fn start(config: ServeConfig) -> Server {
-        Self::start_on(config, "127.0.0.1:0")
-    }
-
-    fn start_on(config: ServeConfig, bind: &str) -> Server {
-        log();
-        let state = AppState::new(config);
-        let listener = std::net::TcpListener::bind(bind).expect("a free port");
-        listener.set_nonblocking(true).unwrap();
-        let port = listener.local_addr().unwrap().port();
-        let (stop, stopped) = tokio::sync::oneshot::channel::<()>();
-        let serving = state.clone();
-        let thread = std::thread::spawn(move || {
-            let runtime = tokio::runtime::Builder::new_multi_thread()
-                .worker_threads(2)
-                .enable_all()
-                .build()?;
-            runtime.block_on(async move {
-                let listener = tokio::net::TcpListener::from_std(listener)?;
-                run(listener, serving, async {
-                    let _ = stopped.await;
-                })
-                .await
-            })
-        });
-        Server { addr: format!("127.0.0.1:{port}"), state, stop: Some(stop), thread: Some(thread) }
-    }
-}
-
-impl Drop for Server {
-    fn drop(&mut self) {
-        if let Some(stop) = self.stop.take() {
-            let _ = stop.send(());
-        }
-        if let Some(t) = self.thread.take() {
-            let _ = t.join();
-        }
-    }
+/// [`serve`] on `bind`.
+fn serve_on(config: ServeConfig, bind: &str) -> Server {
+    log();
+    Server::start_on(config, bind)
 }
 
 /// An answer read off a raw socket.
@@ -214,7 +176,7 @@ fn a_deleted_garbage_or_truncated_file_keeps_the_old_data_serving() {
     let original = std::fs::read(fixtures().join("tidy_nc4.nc")).unwrap();
     replace(dir.path(), "current.nc", &original);
     let text = "reload_interval_secs = 0.05\n[datasets]\nfaulty = \"current.nc\"\n";
-    let server = Server::start(ServeConfig::from_toml(text, dir.path()).unwrap());
+    let server = serve(ServeConfig::from_toml(text, dir.path()).unwrap());
     let addr = server.addr.as_str();
     let want = |bbox: &str| direct("faulty", &fixtures().join("tidy_nc4.nc"), bbox);
     let profile = |bbox: &str| get(addr, &format!("/v1/datasets/faulty/profile?bbox={bbox}"), "");
@@ -298,7 +260,7 @@ fn a_file_truncated_in_place_answers_503_never_a_500_and_says_why() {
     let original = std::fs::read(fixtures().join("tidy_nc4.nc")).unwrap();
     replace(dir.path(), "inplace.nc", &original);
     let text = "reload_interval_secs = 0.05\n[datasets]\ninplace = \"inplace.nc\"\n";
-    let server = Server::start(ServeConfig::from_toml(text, dir.path()).unwrap());
+    let server = serve(ServeConfig::from_toml(text, dir.path()).unwrap());
     let addr = server.addr.as_str();
     let url = |bbox: &str| format!("/v1/datasets/inplace/profile?bbox={bbox}");
     let cached = get(addr, &url("-10,40,10,55"), "");
@@ -362,7 +324,7 @@ fn a_file_truncated_in_place_answers_503_never_a_500_and_says_why() {
 
 #[test]
 fn requests_name_datasets_never_paths() {
-    let server = Server::start(config(""));
+    let server = serve(config(""));
     let addr = server.addr.as_str();
     let tidy = fixtures().join("tidy_nc4.nc").canonicalize().unwrap();
     let absolute = tidy.to_str().unwrap().to_string();
@@ -404,7 +366,7 @@ fn requests_name_datasets_never_paths() {
 
 #[test]
 fn cors_is_off_unless_origins_are_configured() {
-    let server = Server::start(config(""));
+    let server = serve(config(""));
     let addr = server.addr.as_str();
     let simple = get(addr, "/v1/datasets", "Origin: https://dash.example.org\r\n");
     assert_eq!(simple.status, 200);
@@ -423,7 +385,7 @@ fn cors_is_off_unless_origins_are_configured() {
 fn tokens_are_compared_and_never_logged() {
     let token = "tok-3c1f9a7e5b2d4c6e8a0b";
     let wrong = "tok-3c1f9a7e5b2d4c6e8a0c";
-    let server = Server::start(config(&format!("tokens = [\"{token}\"]")));
+    let server = serve(config(&format!("tokens = [\"{token}\"]")));
     let addr = server.addr.as_str();
     let marker = "bbox=-7,41,7,53";
     let target = format!("/v1/datasets/tidy/profile?{marker}");
@@ -443,7 +405,7 @@ fn tokens_are_compared_and_never_logged() {
 
 #[test]
 fn an_address_other_machines_reach_is_logged_as_a_warning() {
-    let exposed = Server::start_on(config(""), "0.0.0.0:0");
+    let exposed = serve_on(config(""), "0.0.0.0:0");
     let port = exposed.addr.rsplit(':').next().unwrap().to_string();
     let reply = get(&exposed.addr, "/healthz", "");
     assert_eq!(reply.status, 200);
@@ -454,7 +416,7 @@ fn an_address_other_machines_reach_is_logged_as_a_warning() {
     );
     drop(exposed);
 
-    let local = Server::start(config(""));
+    let local = serve(config(""));
     assert_eq!(get(&local.addr, "/healthz", "").status, 200);
     assert!(log_lines(&format!("listening on {}", local.addr)).is_empty());
 
@@ -476,7 +438,7 @@ fn an_address_other_machines_reach_is_logged_as_a_warning() {
 
 #[test]
 fn oversized_uris_and_headers_are_refused() {
-    let server = Server::start(config(""));
+    let server = serve(config(""));
     let addr = server.addr.as_str();
     let long = format!("/v1/datasets/tidy/profile?bbox=0,40,10,50&time={}", "1".repeat(9000));
     let a = get(addr, &long, "");
@@ -499,7 +461,7 @@ fn slow_clients_cannot_hold_a_worker_past_the_request_timeout() {
     // One box query at a time and no queue: a client holding the only place would make every
     // other query a 503.
     let limit = 2.0;
-    let server = Server::start(config(&format!(
+    let server = serve(config(&format!(
         "[limits]\nmax_concurrent = 1\nmax_queue = 0\nrequest_timeout_secs = {limit}"
     )));
     let addr = server.addr.clone();

@@ -1,11 +1,21 @@
 //! What the handler tests and the end-to-end tests share: the fixtures, a configuration
-//! serving three of them, and the table of bad requests.
+//! serving three of them, the table of bad requests, the router called through `oneshot`
+//! ([`send`], [`get`], [`Answer`]), and the service on a real socket ([`Server`]).
 
 #![allow(dead_code)] // each test binary uses its own part
 
 use std::path::{Path, PathBuf};
+use std::thread::JoinHandle;
 
+use axum::Router;
+use axum::body::{Body, Bytes};
+use axum::http::{HeaderMap, Request, StatusCode, header};
+use http_body_util::BodyExt;
+use serde_json::Value;
+use shearbox_server::app::run;
 use shearbox_server::config::ServeConfig;
+use shearbox_server::state::AppState;
+use tower::ServiceExt;
 
 /// The committed fixtures.
 pub fn fixtures() -> PathBuf {
@@ -109,4 +119,105 @@ pub fn bad_requests() -> Vec<BadRequest> {
             &["malformed"],
         ),
     ]
+}
+
+/// An answer of the router, read whole.
+pub struct Answer {
+    pub status: StatusCode,
+    pub headers: HeaderMap,
+    pub body: Bytes,
+}
+
+impl Answer {
+    pub fn json(&self) -> Value {
+        serde_json::from_slice(&self.body)
+            .unwrap_or_else(|e| panic!("{e}: {}", String::from_utf8_lossy(&self.body)))
+    }
+
+    pub fn text(&self) -> &str {
+        std::str::from_utf8(&self.body).expect("UTF-8")
+    }
+
+    /// A header's value, or "" when it is absent or not text.
+    pub fn header(&self, name: header::HeaderName) -> &str {
+        self.headers.get(&name).and_then(|v| v.to_str().ok()).unwrap_or("")
+    }
+}
+
+/// Sends `request` to the router through `oneshot` and reads the whole answer.
+pub async fn send(router: &Router, request: Request<Body>) -> Answer {
+    let response = router.clone().oneshot(request).await.expect("the router answers");
+    let status = response.status();
+    let headers = response.headers().clone();
+    let body = response.into_body().collect().await.expect("a body").to_bytes();
+    Answer { status, headers, body }
+}
+
+/// `GET uri` through `oneshot`.
+pub async fn get(router: &Router, uri: &str) -> Answer {
+    send(router, Request::get(uri).body(Body::empty()).unwrap()).await
+}
+
+/// The service serving on a socket of its own, on a thread of its own, until dropped.
+pub struct Server {
+    /// `127.0.0.1:PORT`.
+    pub addr: String,
+    pub state: AppState,
+    stop: Option<tokio::sync::oneshot::Sender<()>>,
+    thread: Option<JoinHandle<std::io::Result<()>>>,
+}
+
+impl Server {
+    /// Serves `config` on a free loopback port.
+    pub fn start(config: ServeConfig) -> Server {
+        Self::start_on(config, "127.0.0.1:0")
+    }
+
+    /// Serves `config` on `bind`.
+    pub fn start_on(config: ServeConfig, bind: &str) -> Server {
+        let state = AppState::new(config);
+        let listener = std::net::TcpListener::bind(bind).expect("a free port");
+        listener.set_nonblocking(true).unwrap();
+        let port = listener.local_addr().unwrap().port();
+        let (stop, stopped) = tokio::sync::oneshot::channel::<()>();
+        let serving = state.clone();
+        let thread = std::thread::spawn(move || {
+            let runtime = tokio::runtime::Builder::new_multi_thread()
+                .worker_threads(2)
+                .enable_all()
+                .build()?;
+            runtime.block_on(async move {
+                let listener = tokio::net::TcpListener::from_std(listener)?;
+                run(listener, serving, async {
+                    let _ = stopped.await;
+                })
+                .await
+            })
+        });
+        Server { addr: format!("127.0.0.1:{port}"), state, stop: Some(stop), thread: Some(thread) }
+    }
+
+    /// `http://127.0.0.1:PORT`.
+    pub fn base(&self) -> String {
+        format!("http://{}", self.addr)
+    }
+
+    /// Asks for shutdown and waits for `run` to return.
+    pub fn stop(&mut self) -> std::io::Result<()> {
+        if let Some(stop) = self.stop.take() {
+            let _ = stop.send(());
+        }
+        self.thread.take().map_or(Ok(()), |t| t.join().expect("the server thread ends"))
+    }
+}
+
+impl Drop for Server {
+    fn drop(&mut self) {
+        if let Some(stop) = self.stop.take() {
+            let _ = stop.send(());
+        }
+        if let Some(t) = self.thread.take() {
+            let _ = t.join();
+        }
+    }
 }
