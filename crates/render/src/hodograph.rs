@@ -256,14 +256,7 @@ fn header(
         box_label(&profile.bbox),
         profile.n_cells
     );
-    let big = anchored(font(18.0, palette::INK), HPos::Left, VPos::Top);
-    let small = anchored(font(13.0, palette::INK), HPos::Left, VPos::Top);
-    sheet.element("text", &[("class", "title".into())], |a| {
-        a.draw(&Text::new(title, (16, 14), big))
-    })?;
-    sheet.element("text", &[("class", "subtitle".into())], |a| {
-        a.draw(&Text::new(sub, (16, 44), small))
-    })
+    sheet.heading(title, sub)
 }
 
 fn rings(sheet: &mut Sheet, frame: &Frame, step: f64, bearings: &[f64]) -> Result<(), RenderError> {

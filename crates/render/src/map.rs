@@ -412,14 +412,7 @@ fn header(
     };
     let sub =
         format!("{time} · {lons}, {}–{} · {rows} × {cols} grid cells", lat_label(s), lat_label(n));
-    let big = anchored(font(18.0, palette::INK), HPos::Left, VPos::Top);
-    let small = anchored(font(13.0, palette::INK), HPos::Left, VPos::Top);
-    sheet.element("text", &[("class", "title".into())], |a| {
-        a.draw(&Text::new(title, (16, 14), big))
-    })?;
-    sheet.element("text", &[("class", "subtitle".into())], |a| {
-        a.draw(&Text::new(sub, (16, 44), small))
-    })
+    sheet.heading(title, sub)
 }
 
 /// Cells shaded by their gradient class; runs of one class along a row are one rectangle.

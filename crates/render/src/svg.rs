@@ -138,6 +138,19 @@ impl Sheet {
         Ok(())
     }
 
+    /// The picture's title and the line under it, at the top left (`text.title`,
+    /// `text.subtitle`).
+    pub fn heading(&mut self, title: String, subtitle: String) -> Result<(), RenderError> {
+        let big = anchored(font(18.0, crate::palette::INK), HPos::Left, VPos::Top);
+        let small = anchored(font(13.0, crate::palette::INK), HPos::Left, VPos::Top);
+        self.element("text", &[("class", "title".into())], |a| {
+            a.draw(&Text::new(title, (16, 14), big))
+        })?;
+        self.element("text", &[("class", "subtitle".into())], |a| {
+            a.draw(&Text::new(subtitle, (16, 44), small))
+        })
+    }
+
     /// Adds markup written by this crate (definitions, group boundaries).
     pub fn raw(&mut self, markup: &str) {
         self.body.push_str(markup);
