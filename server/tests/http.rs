@@ -5,7 +5,7 @@ mod common;
 use std::path::Path;
 use std::time::Duration;
 
-use common::{Server, config, fixtures};
+use common::{Server, agent, config, fixtures};
 use serde_json::Value;
 use shearbox_cf::TimeSelector;
 use shearbox_core::BBox;
@@ -27,14 +27,6 @@ impl Reply {
         serde_json::from_slice(&self.body)
             .unwrap_or_else(|e| panic!("{e}: {}", String::from_utf8_lossy(&self.body)))
     }
-}
-
-fn client() -> ureq::Agent {
-    ureq::Agent::config_builder()
-        .http_status_as_error(false)
-        .timeout_global(Some(Duration::from_secs(60)))
-        .build()
-        .into()
 }
 
 fn fetch(agent: &ureq::Agent, url: &str, headers: &[(&str, &str)]) -> Reply {
@@ -85,7 +77,7 @@ fn metric(text: &str, name: &str, labels: &str) -> f64 {
 #[test]
 fn every_endpoint_and_every_bad_request_over_http() {
     let mut server = Server::start(config(""));
-    let agent = client();
+    let agent = agent();
     let url = |path: &str| format!("{}{path}", server.base());
 
     assert_eq!(fetch(&agent, &url("/healthz"), &[]).json()["status"], "ok");
@@ -190,7 +182,7 @@ fn replaced_and_new_files_are_reloaded_and_a_broken_one_keeps_the_old() {
     let text =
         "reload_interval_secs = 0.05\n[datasets]\nfile = \"current.nc\"\nseries = \"run_*.nc\"\n";
     let server = Server::start(ServeConfig::from_toml(text, dir.path()).unwrap());
-    let agent = client();
+    let agent = agent();
     let url = |path: &str| format!("{}{path}", server.base());
     let last_time = |r: &Reply| r.json()["times"]["last"].as_str().unwrap_or("").to_string();
 
@@ -257,7 +249,7 @@ fn under_load_every_answer_is_a_result_or_a_503_and_the_service_stays_up() {
         .map(|t| {
             let base = base.clone();
             std::thread::spawn(move || {
-                let agent = client();
+                let agent = agent();
                 (0..4)
                     .map(|k| {
                         let west = -40 + t + 16 * (k % 2);
@@ -284,7 +276,7 @@ fn under_load_every_answer_is_a_result_or_a_503_and_the_service_stays_up() {
             other => panic!("status {other}: {}", String::from_utf8_lossy(&r.body)),
         }
     }
-    let agent = client();
+    let agent = agent();
     let after = fetch(&agent, &format!("{base}/v1/datasets/tidy/profile?bbox=0,40,10,50"), &[]);
     assert_eq!(after.status, 200);
     let refused = replies.iter().filter(|r| r.status == 503).count() as f64;

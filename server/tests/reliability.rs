@@ -14,7 +14,7 @@ use std::path::Path;
 use std::sync::{Arc, Mutex, OnceLock};
 use std::time::{Duration, Instant};
 
-use common::{Server, config, fixtures};
+use common::{Server, Sink, config, fixtures};
 use serde_json::Value;
 use shearbox_cf::{Dataset, TimeSelector, VarOverrides};
 use shearbox_core::{BBox, Config};
@@ -36,18 +36,6 @@ fn log() -> &'static Arc<Mutex<Vec<u8>>> {
         tracing::subscriber::set_global_default(subscriber).expect("one global subscriber");
         buffer
     })
-}
-
-struct Sink(Arc<Mutex<Vec<u8>>>);
-
-impl Write for Sink {
-    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
-        self.0.lock().unwrap().extend_from_slice(buf);
-        Ok(buf.len())
-    }
-    fn flush(&mut self) -> std::io::Result<()> {
-        Ok(())
-    }
 }
 
 /// The captured lines that contain `marker`.

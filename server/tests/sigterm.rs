@@ -4,32 +4,13 @@
 
 mod common;
 
-use std::io::Write;
+use common::{Sink, agent};
+
 use std::sync::{Arc, Mutex};
 use std::time::Duration;
 
 use shearbox_server::app::{run, shutdown_signal};
 use shearbox_server::state::AppState;
-
-struct Sink(Arc<Mutex<Vec<u8>>>);
-
-impl Write for Sink {
-    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
-        self.0.lock().unwrap().extend_from_slice(buf);
-        Ok(buf.len())
-    }
-    fn flush(&mut self) -> std::io::Result<()> {
-        Ok(())
-    }
-}
-
-fn agent() -> ureq::Agent {
-    ureq::Agent::config_builder()
-        .http_status_as_error(false)
-        .timeout_global(Some(Duration::from_secs(60)))
-        .build()
-        .into()
-}
 
 #[test]
 fn sigterm_during_queries_finishes_them_before_exit() {

@@ -4,8 +4,11 @@
 
 #![allow(dead_code)] // each test binary uses its own part
 
+use std::io::Write;
 use std::path::{Path, PathBuf};
+use std::sync::{Arc, Mutex};
 use std::thread::JoinHandle;
+use std::time::Duration;
 
 use axum::Router;
 use axum::body::{Body, Bytes};
@@ -220,4 +223,26 @@ impl Drop for Server {
             let _ = t.join();
         }
     }
+}
+
+/// A log writer into a shared buffer, for tests that read what the service logged.
+pub struct Sink(pub Arc<Mutex<Vec<u8>>>);
+
+impl Write for Sink {
+    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
+        self.0.lock().unwrap().extend_from_slice(buf);
+        Ok(buf.len())
+    }
+    fn flush(&mut self) -> std::io::Result<()> {
+        Ok(())
+    }
+}
+
+/// An HTTP client that returns error statuses as answers, with a 60 s limit per call.
+pub fn agent() -> ureq::Agent {
+    ureq::Agent::config_builder()
+        .http_status_as_error(false)
+        .timeout_global(Some(Duration::from_secs(60)))
+        .build()
+        .into()
 }
